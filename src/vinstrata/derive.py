@@ -1,0 +1,95 @@
+"""Derived analytes, computed from measured ones (opt-in, ``[derived] add``).
+
+* ``bound_so2`` = total SO2 - free SO2 (mg/L).
+* ``molecular_so2`` = free SO2 / (1 + 10 ** (pH - pKa)), the Henderson-Hasselbalch
+  share of free SO2 present as SO2·H2O. The default pKa 1.81 is the value trade
+  calculators commonly use; the OIV method OIV-MA-AS323-04C gives 1.798 at
+  20 degC in water, rising with alcohol (``derived.so2_pka`` changes it).
+* ``total_acidity`` = fixed acidity + volatile acidity, both as tartaric acid
+  (g/L): volatile acidity (as acetic) is taken to tartaric equivalents by the
+  ratio of equivalent masses 75.044 / 60.052.
+
+A derived value is missing where one of its parts is missing; its flag says
+``derived``. Derived analytes join the analyte list like measured ones.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+
+from vinstrata.analytes import KINDS_BY_KEY
+from vinstrata.config import Derived
+from vinstrata.errors import InputError
+from vinstrata.lots import AnalyteSpec, LotTable
+from vinstrata.units import ACETIC_TO_TARTARIC
+
+DERIVED_STATE = "derived"
+
+
+def molecular_so2(free_so2: np.ndarray, ph: np.ndarray, pka: float = 1.81) -> np.ndarray:
+    """Molecular SO2 (mg/L) from free SO2 (mg/L) and pH (Henderson-Hasselbalch)."""
+    free_so2 = np.asarray(free_so2, dtype=float)
+    return free_so2 / (1.0 + np.power(10.0, np.asarray(ph, dtype=float) - pka))
+
+
+def free_so2_for_molecular(target: float, ph: np.ndarray | float, pka: float = 1.81) -> np.ndarray:
+    """Free SO2 (mg/L) needed for a molecular SO2 target at a given pH."""
+    return target * (1.0 + np.power(10.0, np.asarray(ph, dtype=float) - pka))
+
+
+_NEEDS = {
+    "bound_so2": ("total_so2", "free_so2"),
+    "molecular_so2": ("free_so2", "ph"),
+    "total_acidity": ("fixed_acidity", "volatile_acidity"),
+}
+
+
+def add_derived(table: LotTable, settings: Derived) -> LotTable:
+    """Return ``table`` with the derived analytes of ``settings.add`` appended.
+
+    Raises
+    ------
+    InputError
+        When a derived analyte is asked for but one of its parts is not among
+        the analytes (named by catalogue kind).
+    """
+    if not settings.add:
+        return table
+    by_kind = {s.kind: s.name for s in table.specs if s.kind}
+    values = table.values.copy()
+    flags = table.flags.copy()
+    specs = list(table.specs)
+    for name in settings.add:
+        if name in values.columns:
+            continue
+        parts = _NEEDS[name]
+        absent = [p for p in parts if p not in by_kind]
+        if absent:
+            raise InputError(
+                f"{table.source.name}: derived analyte '{name}' needs "
+                + " and ".join(KINDS_BY_KEY[p].label for p in absent)
+                + " among the analytes"
+            )
+        a, b = (values[by_kind[p]].to_numpy(dtype=float) for p in parts)
+        if name == "bound_so2":
+            derived = np.clip(a - b, 0.0, None)
+        elif name == "molecular_so2":
+            derived = molecular_so2(a, b, settings.so2_pka)
+        else:
+            derived = a + b * ACETIC_TO_TARTARIC
+        values[name] = derived
+        flags[name] = np.where(np.isfinite(derived), DERIVED_STATE, "missing")
+        specs.append(_derived_spec(name))
+    return dataclasses.replace(table, values=values, flags=flags, specs=tuple(specs))
+
+
+def _derived_spec(name: str) -> AnalyteSpec:
+    if name == "total_acidity":
+        key, label, unit, bounds = "", "total acidity", "g/L tartaric", (0.0, 30.0)
+    else:
+        kind = KINDS_BY_KEY[name]
+        key, label, unit, bounds = kind.key, kind.label, kind.unit, kind.bounds
+    return AnalyteSpec(name=name, column="", kind=key, label=label, unit=unit, unit_in=unit,
+                       factor=1.0, bounds=bounds, concentration=True, derived=True)

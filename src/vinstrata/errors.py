@@ -1,0 +1,28 @@
+"""Errors the engine raises on purpose.
+
+The CLI turns an :class:`InputError` into one line on stderr and exit code 2;
+anything else is an internal fault (exit code 1, traceback only with --debug).
+"""
+
+from __future__ import annotations
+
+
+class InputError(Exception):
+    """Bad input from the user: a file, a config or a model that cannot be used.
+
+    The message is the whole story in one line: it names the file and, where
+    they are known, the row, the column or the config key.
+    """
+
+    def __init__(self, message: str) -> None:
+        super().__init__(" ".join(str(message).split()))
+
+
+def where(path: object, row: int | None = None, column: str | None = None) -> str:
+    """Format a location as ``file, row N, column 'c'`` for error messages."""
+    parts = [str(path)]
+    if row is not None:
+        parts.append(f"row {row}")
+    if column is not None:
+        parts.append(f"column '{column}'")
+    return ", ".join(parts)

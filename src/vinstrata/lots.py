@@ -1,0 +1,128 @@
+"""The data every stage passes on: a validated lot table and its analyte specs.
+
+These are plain frozen dataclasses over pandas DataFrames; :mod:`vinstrata.validate`
+builds them, every later stage reads them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from vinstrata.analytes import KINDS_BY_KEY, Kind
+from vinstrata.ingest import Source
+
+USED = "used"
+
+
+@dataclass(frozen=True)
+class AnalyteSpec:
+    """One analyte column as the engine uses it.
+
+    Attributes
+    ----------
+    name : str
+        The analyte's name in every output (as written in the config).
+    column : str
+        The header it was read from ("" for a derived analyte).
+    kind : str
+        Catalogue key, or "" for a generic analyte.
+    label : str
+        Readable words for names and axes.
+    unit : str
+        Canonical unit of the stored values.
+    unit_in : str
+        Unit as written in the file.
+    factor : float
+        Multiplier from ``unit_in`` to ``unit``.
+    bounds : tuple of float or None
+        Physically possible range in ``unit``.
+    concentration : bool
+        Negative values are impossible.
+    """
+
+    name: str
+    column: str
+    kind: str
+    label: str
+    unit: str
+    unit_in: str
+    factor: float
+    bounds: tuple[float, float] | None
+    concentration: bool
+    derived: bool = False
+
+    @property
+    def catalogue(self) -> Kind | None:
+        return KINDS_BY_KEY.get(self.kind)
+
+    def to_dict(self) -> dict[str, object]:
+        return {
+            "name": self.name, "column": self.column, "kind": self.kind, "label": self.label,
+            "unit": self.unit, "unit_in": self.unit_in, "factor": self.factor,
+            "bounds": list(self.bounds) if self.bounds else None,
+            "concentration": self.concentration, "derived": self.derived,
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict[str, object]) -> AnalyteSpec:
+        bounds = data.get("bounds")
+        return cls(
+            name=str(data["name"]), column=str(data["column"]), kind=str(data["kind"]),
+            label=str(data["label"]), unit=str(data["unit"]), unit_in=str(data["unit_in"]),
+            factor=float(data["factor"]),  # type: ignore[arg-type]
+            bounds=(float(bounds[0]), float(bounds[1])) if bounds else None,  # type: ignore[index]
+            concentration=bool(data["concentration"]), derived=bool(data.get("derived", False)),
+        )
+
+
+@dataclass(frozen=True)
+class LotTable:
+    """A validated lot table: every input row, its status, values in canonical units.
+
+    All frames share one RangeIndex, one row per input data row, in file order.
+
+    Attributes
+    ----------
+    ids : DataFrame
+        ``row`` (file row number), ``lot_id``, ``status``, ``detail``, ``grade``.
+    values : DataFrame
+        One float column per analyte, canonical units; NaN where missing.
+    flags : DataFrame
+        One column per analyte: cell state (``ok``, ``missing``,
+        ``censored_below``, ``censored_above``, ``non_numeric``).
+    extra : DataFrame
+        Passthrough columns, text as written.
+    specs : tuple of AnalyteSpec
+    source : Source
+    blank_rows : int
+        Entirely blank file rows skipped (they hold no lot).
+    decimal : str
+        The decimal mark the numbers were read with.
+    """
+
+    ids: pd.DataFrame
+    values: pd.DataFrame
+    flags: pd.DataFrame
+    extra: pd.DataFrame
+    specs: tuple[AnalyteSpec, ...]
+    source: Source
+    blank_rows: int = 0
+    decimal: str = "."
+    has_grade: bool = False
+    notes: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def analytes(self) -> tuple[str, ...]:
+        return tuple(s.name for s in self.specs)
+
+    @property
+    def used(self) -> np.ndarray:
+        """Boolean mask of the rows with status ``used``."""
+        return (self.ids["status"] == USED).to_numpy()
+
+    @property
+    def n_rows(self) -> int:
+        return len(self.ids)

@@ -1,0 +1,334 @@
+"""From text cells to a validated lot table in canonical units.
+
+:func:`validate` is the front door every command goes through, for training
+lots and new lots alike: it matches the configured columns, parses cells
+(:mod:`vinstrata.cells`), converts units (:mod:`vinstrata.units`), gives every
+row a status and adds the derived analytes (:mod:`vinstrata.derive`). No row is
+dropped: a row that cannot be used keeps its place with a rejection reason.
+
+Statuses (the first that applies wins; ``detail`` says more):
+
+=========================  =====================================================
+``used``                   the row goes on to segmentation, profiles or placing
+``missing_lot_id``         the lot id cell is empty
+``duplicate_lot_id``       the lot id appeared on an earlier row (or on any other
+                           row with ``ingest.duplicate_ids = "reject_all"``)
+``non_numeric:<column>``   a cell is neither a number, missing nor censored
+``missing_grade``          no grade where the command needs one
+``negative:<column>``      a negative concentration
+``out_of_range:<column>``  outside the physically possible range of the analyte
+                           (see :mod:`vinstrata.analytes` for each range's source)
+``free_so2_above_total``   free SO2 greater than total SO2
+``too_many_missing``       more than ``ingest.max_missing_share`` of the
+                           analytes missing
+=========================  =====================================================
+
+Missing cells in used rows are imputed later, inside the fitted transform
+(:mod:`vinstrata.transform`), and flagged per cell.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+
+import numpy as np
+import pandas as pd
+
+from vinstrata import cells as cellmod
+from vinstrata.analytes import KINDS_BY_KEY, Kind, kind_for, label_for, normalise_name, split_unit
+from vinstrata.config import Config
+from vinstrata.derive import add_derived
+from vinstrata.errors import InputError
+from vinstrata.ingest import RawTable, read_table
+from vinstrata.lots import USED, AnalyteSpec, LotTable
+from vinstrata.units import factor_to_canonical
+
+# --------------------------------------------------------------------------- column matching
+
+
+def _header_index(headers: list[str]) -> dict[str, list[str]]:
+    index: dict[str, list[str]] = {}
+    for header in headers:
+        keys = {normalise_name(header), normalise_name(split_unit(header)[0])}
+        for key in keys:
+            index.setdefault(key, []).append(header)
+    return index
+
+
+def _find_column(name: str, index: dict[str, list[str]], headers: list[str], where: str) -> str:
+    if name in headers:
+        return name
+    found = sorted(set(index.get(normalise_name(name), [])))
+    if len(found) == 1:
+        return found[0]
+    if len(found) > 1:
+        raise InputError(f"{where}: column '{name}' matches several headers: {', '.join(found)}")
+    shown = ", ".join(headers[:25]) + (" ..." if len(headers) > 25 else "")
+    raise InputError(f"{where}: column '{name}' not found (columns: {shown})")
+
+
+def _auto_analytes(raw: RawTable, taken: set[str]) -> list[str]:
+    chosen = []
+    for header in raw.cells.columns:
+        if header in taken:
+            continue
+        values, states = cellmod.parse_cells(raw.cells[header])
+        filled = states != cellmod.MISSING
+        if filled.sum() and (states[filled] != cellmod.NON_NUMERIC).mean() >= 0.9:
+            chosen.append(header)
+    return chosen
+
+
+def _config_key(table: dict[str, object], name: str) -> object | None:
+    if name in table:
+        return table[name]
+    for key, value in table.items():
+        if normalise_name(key) == normalise_name(name):
+            return value
+    return None
+
+
+def _check_table_keys(config: Config, names: list[str]) -> None:
+    known = {normalise_name(n) for n in names}
+    for section in ("units", "kinds", "bounds"):
+        for key in getattr(config, section):
+            if normalise_name(key) not in known:
+                raise InputError(
+                    f"{config.source}: key '{section}.{key}': '{key}' is not one of the analytes "
+                    f"({', '.join(names)})"
+                )
+
+
+def resolve_specs(config: Config, headers: dict[str, str]) -> list[AnalyteSpec]:
+    """Build the analyte specs from config and matched headers (name -> header)."""
+    specs = []
+    for name, header in headers.items():
+        kind_key = _config_key(dict(config.kinds), name)
+        if kind_key is not None:
+            if kind_key not in KINDS_BY_KEY:
+                known = ", ".join(sorted(KINDS_BY_KEY))
+                raise InputError(
+                    f"{config.source}: key 'kinds.{name}': expected a catalogue analyte "
+                    f"(one of {known}), got '{kind_key}'"
+                )
+            kind: Kind | None = KINDS_BY_KEY[str(kind_key)]
+        else:
+            kind = kind_for(name) or kind_for(header)
+        written_unit = _config_key(dict(config.units), name)
+        unit_in = str(written_unit) if written_unit is not None else split_unit(header)[1]
+        if kind is not None:
+            try:
+                factor = factor_to_canonical(kind, unit_in)
+            except KeyError as exc:
+                key = f"units.{name}" if written_unit is not None else f"column '{header}'"
+                raise InputError(f"{config.source}: {key}: {exc.args[0]}") from None
+            unit = kind.unit
+            bounds: tuple[float, float] | None = kind.bounds
+            concentration = kind.concentration
+        else:
+            factor, unit = 1.0, (unit_in or "")
+            bounds, concentration = None, False
+        override = _config_key(dict(config.bounds), name)
+        if override is not None:
+            bounds = override  # type: ignore[assignment]
+        specs.append(AnalyteSpec(
+            name=name, column=header, kind=kind.key if kind else "", label=label_for(name, kind),
+            unit=unit, unit_in=unit_in or unit, factor=factor, bounds=bounds,
+            concentration=concentration,
+        ))
+    return specs
+
+
+# --------------------------------------------------------------------------- row checks
+
+
+def _fmt(value: float) -> str:
+    return f"{value:.6g}"
+
+
+class _Statuses:
+    """Collects the first rejection reason of each row."""
+
+    def __init__(self, n: int, rows: list[int]) -> None:
+        self.status = np.full(n, USED, dtype=object)
+        self.detail = np.full(n, "", dtype=object)
+        self.rows = rows
+
+    def reject(self, mask: np.ndarray, reason: str, detail: Callable[[int], str]) -> None:
+        """Give ``reason`` to the rows in ``mask`` not rejected yet; ``detail(i)`` words it."""
+        fresh = np.asarray(mask, dtype=bool) & (self.status == USED)
+        for i in np.flatnonzero(fresh):
+            self.status[i] = reason
+            self.detail[i] = detail(int(i))
+
+
+def _check_ids(stat: _Statuses, lot_ids: pd.Series, lot_col: str, policy: str) -> None:
+    rows = stat.rows
+    stat.reject((lot_ids == "").to_numpy(), "missing_lot_id",
+                lambda i: f"row {rows[i]}: no lot id in column '{lot_col}'")
+    present = lot_ids != ""
+    keep = False if policy == "reject_all" else "first"
+    dup = (lot_ids.duplicated(keep=keep) & present).to_numpy()
+    if not dup.any():
+        return
+    first_row: dict[str, int] = {}
+    for i, lot in enumerate(lot_ids):
+        first_row.setdefault(lot, rows[i])
+
+    def detail(i: int) -> str:
+        lot, first = lot_ids.iloc[i], first_row[lot_ids.iloc[i]]
+        if first != rows[i]:
+            return f"row {rows[i]}: lot id '{lot}' also on row {first}"
+        return f"row {rows[i]}: lot id '{lot}' appears more than once"
+
+    stat.reject(dup, "duplicate_lot_id", detail)
+
+
+def _check_numeric(stat: _Statuses, states: np.ndarray, text: np.ndarray, name: str,
+                   column: str) -> None:
+    rows = stat.rows
+    stat.reject(states == cellmod.NON_NUMERIC, f"non_numeric:{name}",
+                lambda i: f"row {rows[i]}, column '{column}': '{_short(text[i])}' is not a number")
+
+
+def _check_range(stat: _Statuses, v: np.ndarray, spec: AnalyteSpec) -> None:
+    rows, unit = stat.rows, spec.unit
+    finite = np.isfinite(v)
+    if spec.concentration:
+        stat.reject(finite & (v < 0), f"negative:{spec.name}",
+                    lambda i: f"row {rows[i]}, column '{spec.column}': {_fmt(v[i])} {unit} "
+                    "is negative")
+    if spec.bounds is not None:
+        lo, hi = spec.bounds
+        stat.reject(finite & ((v < lo) | (v > hi)), f"out_of_range:{spec.name}",
+                    lambda i: f"row {rows[i]}, column '{spec.column}': {_fmt(v[i])} {unit} is "
+                    f"outside the possible {_fmt(lo)}-{_fmt(hi)} {unit}")
+
+
+def _check_so2(stat: _Statuses, values: dict[str, np.ndarray], specs: list[AnalyteSpec]) -> None:
+    by_kind = {s.kind: s.name for s in specs if s.kind}
+    if "free_so2" not in by_kind or "total_so2" not in by_kind:
+        return
+    rows = stat.rows
+    free, total = values[by_kind["free_so2"]], values[by_kind["total_so2"]]
+    over = np.isfinite(free) & np.isfinite(total) & (free > total + 1e-9)
+    stat.reject(over, "free_so2_above_total",
+                lambda i: f"row {rows[i]}: free SO2 {_fmt(free[i])} mg/L is above total SO2 "
+                f"{_fmt(total[i])} mg/L")
+
+
+def _check_missing(stat: _Statuses, flags: dict[str, np.ndarray], n_analytes: int,
+                   share: float) -> None:
+    rows = stat.rows
+    n_missing = sum((f == cellmod.MISSING).astype(int) for f in flags.values())
+    allowed = math.floor(share * n_analytes + 1e-9)
+    too_many = (n_missing > allowed) | (n_missing == n_analytes)
+    stat.reject(too_many, "too_many_missing",
+                lambda i: f"row {rows[i]}: {n_missing[i]} of {n_analytes} analytes missing "
+                f"(at most {allowed} allowed)")
+
+
+def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTable:
+    """Validate a raw table against the config.
+
+    Parameters
+    ----------
+    raw : RawTable
+        Text cells from :func:`vinstrata.ingest.read_table`.
+    config : Config
+    require_grade : bool
+        Rows without a grade are rejected (``missing_grade``) when True and the
+        config names a grade column; placing new lots passes False.
+
+    Returns
+    -------
+    LotTable
+
+    Raises
+    ------
+    InputError
+        A configured column is missing, a unit is unknown for its analyte.
+    """
+    name = raw.source.name
+    headers = list(raw.cells.columns)
+    index = _header_index(headers)
+    cols = config.columns
+    lot_col = _find_column(cols.lot_id, index, headers, name)
+    grade_col = ""
+    if cols.grade:
+        try:
+            grade_col = _find_column(cols.grade, index, headers, name)
+        except InputError:
+            if require_grade:
+                raise
+    passthrough = {p: _find_column(p, index, headers, name) for p in cols.passthrough}
+    taken = {lot_col, grade_col, *passthrough.values()}
+    analyte_names = list(cols.analytes) or _auto_analytes(raw, taken)
+    if not analyte_names:
+        raise InputError(f"{name}: no analyte columns (name them in [columns] analytes)")
+    _check_table_keys(config, analyte_names)
+    matched = {a: _find_column(a, index, headers, name) for a in analyte_names}
+    clash = [a for a, h in matched.items() if h in taken]
+    if clash:
+        raise InputError(f"{name}: column '{matched[clash[0]]}' is named twice in [columns]")
+    specs = resolve_specs(config, matched)
+
+    n = len(raw.cells)
+    rows = raw.rows
+    decimal = config.ingest.decimal
+    numeric_cols = [raw.cells[s.column] for s in specs] + ([raw.cells[grade_col]] if grade_col else [])
+    if decimal == "auto":
+        decimal = cellmod.detect_decimal(numeric_cols)
+    stat = _Statuses(n, rows)
+    lot_ids = raw.cells[lot_col].astype(str).str.strip()
+    _check_ids(stat, lot_ids, lot_col, config.ingest.duplicate_ids)
+
+    values, flags = {}, {}
+    for spec in specs:
+        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal, config.ingest.censored)
+        values[spec.name] = parsed * spec.factor
+        flags[spec.name] = states
+        _check_numeric(stat, states, raw.cells[spec.column].to_numpy(), spec.name, spec.column)
+
+    grade = np.full(n, np.nan)
+    if grade_col:
+        grade, gstates = cellmod.parse_cells(raw.cells[grade_col], decimal)
+        bad = (gstates != cellmod.OK) & (gstates != cellmod.MISSING)
+        grade[bad] = np.nan
+        gstates = np.where(bad, cellmod.NON_NUMERIC, gstates)
+        _check_numeric(stat, gstates, raw.cells[grade_col].to_numpy(), cols.grade, grade_col)
+        if require_grade:
+            stat.reject(gstates == cellmod.MISSING, "missing_grade",
+                        lambda i: f"row {rows[i]}: no grade in column '{grade_col}'")
+
+    for spec in specs:
+        _check_range(stat, values[spec.name], spec)
+    _check_so2(stat, values, specs)
+    _check_missing(stat, flags, len(specs), config.ingest.max_missing_share)
+
+    ids = pd.DataFrame({
+        "row": np.asarray(rows, dtype=int), "lot_id": lot_ids.to_numpy(dtype=object),
+        "status": stat.status, "detail": stat.detail, "grade": grade,
+    })
+    value_frame = pd.DataFrame(values, index=ids.index)
+    flag_frame = pd.DataFrame(flags, index=ids.index)
+    extra = pd.DataFrame({p: raw.cells[h].to_numpy(dtype=object) for p, h in passthrough.items()},
+                         index=ids.index)
+    table = LotTable(
+        ids=ids, values=value_frame, flags=flag_frame, extra=extra, specs=tuple(specs),
+        source=raw.source, blank_rows=raw.blank_rows, decimal=decimal,
+        has_grade=bool(grade_col),
+    )
+    return add_derived(table, config.derived)
+
+
+def _short(text: object) -> str:
+    text = " ".join(str(text).split())
+    return text if len(text) <= 30 else text[:27] + "..."
+
+
+def load_lots(path: str, config: Config, require_grade: bool = True) -> LotTable:
+    """Read and validate a lot file: :func:`read_table` then :func:`validate`."""
+    raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter)
+    return validate(raw, config, require_grade=require_grade)
