@@ -151,6 +151,67 @@ def segment(state: State, lots: str, config_path: str | None, out_dir: str, shee
     _say(f"wrote {out}/ (model in {out / 'model'})")
 
 
+# --------------------------------------------------------------------------- profile
+
+
+@cli.command()
+@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
+@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_dir", required=True, help="Output folder.")
+@click.pass_obj
+def profile(state: State, model_dir: str, config_path: str | None, out_dir: str) -> None:
+    """Profile each style against its grade bands; writes drivers, thresholds, contrasts."""
+    from vinstrata import pipeline
+    from vinstrata.model import load_model
+    from vinstrata.profile import driver_summary
+
+    rep = state.reporter()
+    model = load_model(model_dir)
+    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+    with rep.stage("profile (bootstrap, effect sizes, thresholds)"):
+        profiles = pipeline.profile(model, config, rep)
+    pipeline.write_profile(profiles, out_dir)
+    for line in driver_summary(profiles, model, config.report.top_drivers):
+        _say(line)
+    for sentence in profiles.contrasts["sentence"].head(12):
+        _say(f"  * {sentence}")
+    _summary(rep)
+    _say(f"wrote {out_dir}/")
+
+
+# --------------------------------------------------------------------------- place
+
+
+@cli.command()
+@click.argument("new")
+@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
+@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_dir", required=True, help="Output folder.")
+@click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
+@click.pass_obj
+def place(state: State, new: str, model_dir: str, config_path: str | None, out_dir: str,
+          sheet: str | None) -> None:
+    """Place new lots against their styles; writes placements.csv and details."""
+    from vinstrata import pipeline
+    from vinstrata.model import load_model
+    from vinstrata.place import describe
+
+    rep = state.reporter()
+    model = load_model(model_dir)
+    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+    with rep.stage("read and validate new lots"):
+        table = pipeline.load_new(new, model, config, sheet=sheet)
+    pipeline.warn_rejections(table, rep)
+    with rep.stage("profile the model's styles (for driver cuts)"):
+        profiles = pipeline.profile(model, config) if model.has_grade else None
+    with rep.stage("place"):
+        placements = pipeline.place(table, model, profiles, config, rep)
+    pipeline.write_place(placements, out_dir)
+    _say(describe(placements))
+    _summary(rep)
+    _say(f"wrote {out_dir}/")
+
+
 # --------------------------------------------------------------------------- entry point
 
 

@@ -1,0 +1,410 @@
+"""Within-style quality drivers: what separates top-graded from bottom-graded lots.
+
+:func:`profile_styles` works on a fitted :class:`~vinstrata.model.StyleModel`.
+Per style, and for the pooled range (style ``all``), per analyte:
+
+* n, median and quartiles of each grade band (``band_stats``);
+* Cliff's delta of the top band against the bottom band with a seeded
+  percentile-bootstrap CI (``profile.bootstrap`` resamples, default 2000);
+  Hedges' g with its CI; the two-sided Mann-Whitney p-value; the
+  Benjamini-Hochberg q over every test of the run (every style x analyte and
+  the pooled rows); Spearman's rho of the analyte with the grade over all the
+  style's lots;
+* an analyte is a *driver* of a style when q < ``profile.fdr`` and the delta CI
+  excludes 0; drivers are ranked by |delta|;
+* a band with fewer than ``profile.min_band_lots`` lots (default 10) gets no
+  effect size: the row's note says ``insufficient``, its numbers stay empty;
+* for each driver, the Youden cut between top and bottom band, its direction,
+  J, AUC and a bootstrap CI of the cut; for every analyte the top band's
+  central range (``profile.target_quantiles``, 10 %-90 %) as target window;
+* contrasts between styles (:func:`contrasts`): reversals, style-specific
+  drivers and pooled results that mislead.
+
+Values imputed at ingest are left out of every statistic here: profiles use
+the measured (or censored) values only.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from vinstrata import stats
+from vinstrata.bands import assign_bands
+from vinstrata.cells import MISSING
+from vinstrata.config import Config
+from vinstrata.errors import InputError
+from vinstrata.model import UNASSIGNED, StyleModel
+from vinstrata.progress import Reporter
+
+POOLED = "all"
+DRIVER_COLUMNS = ("style", "analyte", "n_top", "n_bottom", "median_top", "median_bottom",
+                  "cliffs_delta", "ci_low", "ci_high", "hedges_g", "p_value", "q_value",
+                  "spearman_rho", "is_driver", "rank", "trusted", "note")
+EXTRA_DRIVER_COLUMNS = ("hedges_g_ci_low", "hedges_g_ci_high", "magnitude", "iqr_top",
+                        "iqr_bottom", "n_lots")
+THRESHOLD_COLUMNS = ("style", "analyte", "direction", "cut", "cut_ci_low", "cut_ci_high",
+                     "youden_j", "auc", "target_low", "target_high")
+CONTRAST_COLUMNS = ("analyte", "kind", "styles", "sentence")
+
+
+@dataclass(frozen=True)
+class Profiles:
+    """Everything the profile stage produces (all plain DataFrames)."""
+
+    drivers: pd.DataFrame
+    thresholds: pd.DataFrame
+    contrasts: pd.DataFrame
+    band_counts: pd.DataFrame
+    band_stats: pd.DataFrame
+
+
+@dataclass(frozen=True)
+class Group:
+    """The lots of one style (or of the pooled range) with their bands."""
+
+    style: str
+    trusted: bool
+    rows: np.ndarray  # indices into the model's lots
+    bands: np.ndarray
+    note: str = ""
+
+
+# --------------------------------------------------------------------------- groups
+
+
+def style_groups(model: StyleModel, config: Config) -> list[Group]:
+    """The styles' lots (plus, if configured, their unassigned lots) and the pooled range."""
+    lots = model.lots
+    grades = lots["grade"].to_numpy(dtype=float)
+    if not np.isfinite(grades).any():
+        raise InputError(f"{model.source.name}: the model's lots have no grades; profiles need "
+                         "the grade column ([columns] grade)")
+    style = lots["style"].to_numpy(dtype=object)
+    home = style.copy()
+    if config.profile.include_unassigned:
+        home = np.where(style == UNASSIGNED, lots["nearest_style"].to_numpy(dtype=object), style)
+    bands_by_style = assign_bands(grades, home, config.bands)
+    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
+    groups = []
+    for sid in model.style_ids:
+        rows = np.flatnonzero(home == sid)
+        extra = int((style[rows] == UNASSIGNED).sum())
+        note = f"includes {extra} unassigned lots under their nearest style" if extra else ""
+        groups.append(Group(sid, bool(trusted[sid]), rows, bands_by_style[rows], note))
+    pooled_bands = assign_bands(grades, np.full(len(lots), POOLED, dtype=object), config.bands)
+    groups.append(Group(POOLED, True, np.arange(len(lots)), pooled_bands,
+                        "pooled over every lot of the range, styles ignored"))
+    return groups
+
+
+# --------------------------------------------------------------------------- one group
+
+
+def _observed(model: StyleModel, analyte: str) -> np.ndarray:
+    values = model.values[analyte].to_numpy(dtype=float).copy()
+    values[(model.flags[analyte] == MISSING).to_numpy()] = np.nan
+    return values
+
+
+def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
+                   config: Config, rng: np.random.Generator) -> tuple[list[dict], dict]:
+    """Driver rows of one group, and the resampling weights kept for thresholds."""
+    prof = config.profile
+    top_band, bottom_band = len(config.bands.labels) - 1, 0
+    top_rows = group.rows[group.bands == top_band]
+    bottom_rows = group.rows[group.bands == bottom_band]
+    b = prof.bootstrap
+    weights = {
+        "top": stats.resample_weights(rng, len(top_rows), b) if len(top_rows) else None,
+        "bottom": stats.resample_weights(rng, len(bottom_rows), b) if len(bottom_rows) else None,
+        "top_rows": top_rows, "bottom_rows": bottom_rows,
+    }
+    alpha = (1 - prof.ci_level) / 2
+    out = []
+    for analyte, values in observed.items():
+        xt, xb = values[top_rows], values[bottom_rows]
+        ok_t, ok_b = np.isfinite(xt), np.isfinite(xb)
+        n_top, n_bottom = int(ok_t.sum()), int(ok_b.sum())
+        all_vals = values[group.rows]
+        row = {
+            "style": group.style, "analyte": analyte, "n_top": n_top, "n_bottom": n_bottom,
+            "median_top": _q(xt[ok_t], 0.5), "median_bottom": _q(xb[ok_b], 0.5),
+            "cliffs_delta": np.nan, "ci_low": np.nan, "ci_high": np.nan, "hedges_g": np.nan,
+            "p_value": np.nan, "q_value": np.nan,
+            "spearman_rho": stats.spearman_rho(all_vals, grades[group.rows]),
+            "is_driver": False, "rank": np.nan, "trusted": group.trusted, "note": group.note,
+            "hedges_g_ci_low": np.nan, "hedges_g_ci_high": np.nan, "magnitude": "",
+            "iqr_top": _iqr(xt[ok_t]), "iqr_bottom": _iqr(xb[ok_b]),
+            "n_lots": int(np.isfinite(all_vals).sum()),
+        }
+        if n_top < prof.min_band_lots or n_bottom < prof.min_band_lots:
+            row["note"] = _join(
+                f"insufficient: {n_top} lots in the {config.bands.labels[-1]} band and "
+                f"{n_bottom} in the {config.bands.labels[0]} band (minimum "
+                f"{prof.min_band_lots} each)", group.note)
+            out.append(row)
+            continue
+        top, bottom = xt[ok_t], xb[ok_b]
+        sorted_ = stats.Sorted.of(xt, xb)
+        deltas = np.empty(b)
+        for block in stats.blocks(b, len(sorted_.values)):
+            deltas[block] = stats.delta_from_counts(
+                sorted_.counts(weights["top"][:, block], "top"),
+                sorted_.counts(weights["bottom"][:, block], "bottom"))
+        g = stats.hedges_g(top, bottom, prof.ci_level)
+        delta = stats.cliffs_delta(top, bottom)
+        finite = deltas[np.isfinite(deltas)]
+        row.update({
+            "cliffs_delta": delta,
+            "ci_low": float(np.quantile(finite, alpha)),
+            "ci_high": float(np.quantile(finite, 1 - alpha)),
+            "hedges_g": g.g, "hedges_g_ci_low": g.ci_low, "hedges_g_ci_high": g.ci_high,
+            "p_value": stats.mann_whitney_p(top, bottom), "magnitude": stats.magnitude(delta),
+        })
+        if not group.trusted:
+            row["note"] = _join("untrusted style", row["note"])
+        out.append(row)
+    return out, weights
+
+
+def _q(x: np.ndarray, q: float) -> float:
+    return float(np.quantile(x, q)) if x.size else float("nan")
+
+
+def _iqr(x: np.ndarray) -> float:
+    return float(np.subtract(*np.quantile(x, [0.75, 0.25]))) if x.size else float("nan")
+
+
+def _join(*parts: str) -> str:
+    return "; ".join(p for p in parts if p)
+
+
+def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndarray],
+                weights: dict, config: Config) -> list[dict]:
+    prof = config.profile
+    alpha = (1 - prof.ci_level) / 2
+    lo_q, hi_q = prof.target_quantiles
+    top_rows, bottom_rows = weights["top_rows"], weights["bottom_rows"]
+    out = []
+    for row in drivers.itertuples():
+        values = observed[row.analyte]
+        xt, xb = values[top_rows], values[bottom_rows]
+        ok_t, ok_b = np.isfinite(xt), np.isfinite(xb)
+        top = xt[ok_t]
+        enough_top = top.size >= prof.min_band_lots
+        item = {
+            "style": group.style, "analyte": row.analyte, "direction": "", "cut": np.nan,
+            "cut_ci_low": np.nan, "cut_ci_high": np.nan, "youden_j": np.nan, "auc": np.nan,
+            "target_low": _q(top, lo_q) if enough_top else np.nan,
+            "target_high": _q(top, hi_q) if enough_top else np.nan,
+        }
+        if row.is_driver:
+            higher = row.cliffs_delta > 0
+            sorted_ = stats.Sorted.of(xt, xb)
+            ones_t = np.ones((xt.size, 1), dtype=np.float32)
+            ones_b = np.ones((xb.size, 1), dtype=np.float32)
+            cut, j = stats.youden_from_counts(sorted_.counts(ones_t, "top"),
+                                              sorted_.counts(ones_b, "bottom"),
+                                              sorted_.values, higher)
+            cuts = np.empty(prof.bootstrap)
+            for block in stats.blocks(prof.bootstrap, len(sorted_.values)):
+                cuts[block] = stats.youden_from_counts(
+                    sorted_.counts(weights["top"][:, block], "top"),
+                    sorted_.counts(weights["bottom"][:, block], "bottom"),
+                    sorted_.values, higher)[0]
+            auc = (row.cliffs_delta + 1) / 2
+            item.update({
+                "direction": "higher_better" if higher else "lower_better",
+                "cut": float(cut[0]), "youden_j": float(j[0]),
+                "cut_ci_low": float(np.quantile(cuts, alpha)),
+                "cut_ci_high": float(np.quantile(cuts, 1 - alpha)),
+                "auc": float(auc if higher else 1 - auc),
+            })
+        out.append(item)
+    return out
+
+
+# --------------------------------------------------------------------------- contrasts
+
+
+def _say_side(higher: bool, label: str) -> str:
+    return f"{'higher' if higher else 'lower'} {label}"
+
+
+def _names(styles: list[str]) -> str:
+    if len(styles) <= 2:
+        return " and ".join(styles)
+    return ", ".join(styles[:-1]) + " and " + styles[-1]
+
+
+def contrasts(drivers: pd.DataFrame, labels: dict[str, str]) -> pd.DataFrame:
+    """Where drivers differ between trusted styles, and where the pooled range misleads.
+
+    Kinds (per analyte):
+
+    * ``reversal``: a driver in opposite directions in two or more trusted styles;
+    * ``style_specific``: a driver (one direction) in some trusted styles and no
+      clear effect in other trusted styles with enough lots;
+    * ``pooled_misleading``: the pooled range is not a driver, or points the other
+      way, while trusted styles show drivers; or the pooled range shows a driver
+      that no trusted style shows (a difference between styles dressed as a
+      quality driver).
+    """
+    rows = []
+    within = drivers[(drivers["style"] != POOLED) & drivers["trusted"].astype(bool)]
+    pooled = drivers[drivers["style"] == POOLED].set_index("analyte")
+    for analyte in dict.fromkeys(drivers["analyte"]):
+        label = labels.get(analyte, analyte)
+        mine = within[within["analyte"] == analyte]
+        evaluated = mine[mine["cliffs_delta"].notna()]
+        up = list(evaluated[evaluated["is_driver"] & (evaluated["cliffs_delta"] > 0)]["style"])
+        down = list(evaluated[evaluated["is_driver"] & (evaluated["cliffs_delta"] < 0)]["style"])
+        flat = list(evaluated[~evaluated["is_driver"].astype(bool)]["style"])
+        p = pooled.loc[analyte] if analyte in pooled.index else None
+        p_driver = bool(p is not None and p["is_driver"])
+        p_up = bool(p_driver and p["cliffs_delta"] > 0)
+        pooled_words = (f"pooled, {_say_side(p_up, label)} looks better" if p_driver
+                        else "pooled, no effect shows")
+        flat_words = f"; in {_names(flat)} no clear effect shows" if flat else ""
+        if up and down:
+            rows.append({"analyte": analyte, "kind": "reversal", "styles": ";".join(up + down),
+                         "sentence": f"In {_names(up)} higher {label} goes with higher grades; "
+                                     f"in {_names(down)} the opposite{flat_words}; "
+                                     f"{pooled_words}."})
+        elif (up or down) and flat:
+            side = up or down
+            rows.append({"analyte": analyte, "kind": "style_specific",
+                         "styles": ";".join(side + flat),
+                         "sentence": f"In {_names(side)} {_say_side(bool(up), label)} goes "
+                                     f"with higher grades{flat_words}; {pooled_words}."})
+        if up or down:
+            signs = {True} if up and not down else {False} if down and not up else {True, False}
+            if not p_driver or signs != {p_up}:
+                side_text = "; ".join(
+                    [f"inside {_names(up)} higher {label} goes with higher grades"] * bool(up)
+                    + [f"inside {_names(down)} lower {label} does"] * bool(down))
+                head = ("Pooled over all styles no effect shows" if not p_driver else
+                        f"Pooled over all styles {_say_side(p_up, label)} looks better")
+                rows.append({"analyte": analyte, "kind": "pooled_misleading",
+                             "styles": ";".join([*up, *down, POOLED]),
+                             "sentence": f"{head}, while {side_text}."})
+        elif p_driver and len(evaluated):
+            rows.append({"analyte": analyte, "kind": "pooled_misleading",
+                         "styles": ";".join([*flat, POOLED]),
+                         "sentence": f"Pooled over all styles {_say_side(p_up, label)} looks "
+                                     f"like a driver of higher grades, but inside no trusted "
+                                     f"style does {label} move with the grade: the pooled "
+                                     f"effect comes from differences between styles."})
+    return pd.DataFrame(rows, columns=list(CONTRAST_COLUMNS))
+
+
+# --------------------------------------------------------------------------- the stage
+
+
+def profile_styles(model: StyleModel, config: Config | None = None,
+                   reporter: Reporter | None = None) -> Profiles:
+    """Profile every style of ``model`` against its grade bands.
+
+    Parameters
+    ----------
+    model : StyleModel
+    config : Config, optional
+        Profile and band settings; the model's own config when None.
+    reporter : Reporter, optional
+
+    Returns
+    -------
+    Profiles
+    """
+    config = config or model.config
+    rep = reporter or Reporter()
+    groups = style_groups(model, config)
+    grades = model.lots["grade"].to_numpy(dtype=float)
+    analytes = [s.name for s in model.specs]
+    observed = {a: _observed(model, a) for a in analytes}
+    rng = np.random.default_rng(config.seed)
+    rows, kept = [], []
+    for i, group in enumerate(groups):
+        group_rows, weights = _profile_group(group, observed, grades, config, rng)
+        rows += group_rows
+        kept.append(weights)
+        rep.bar(i + 1, len(groups), "  bootstrap")
+    drivers = pd.DataFrame(rows)
+    drivers["q_value"] = stats.bh_adjust(drivers["p_value"].to_numpy())
+    ci_excludes = (drivers["ci_low"] > 0) | (drivers["ci_high"] < 0)
+    drivers["is_driver"] = ((drivers["q_value"] < config.profile.fdr) & ci_excludes).fillna(False)
+    drivers["is_driver"] = drivers["is_driver"].astype(bool)
+    drivers["rank"] = np.nan
+    for style, part in drivers[drivers["is_driver"]].groupby("style", sort=False):
+        order = part["cliffs_delta"].abs().sort_values(ascending=False, kind="stable").index
+        drivers.loc[order, "rank"] = np.arange(1, len(order) + 1)
+    drivers = drivers[list(DRIVER_COLUMNS) + list(EXTRA_DRIVER_COLUMNS)]
+
+    threshold_rows = []
+    for group, weights in zip(groups, kept):
+        if group.style == POOLED:
+            continue
+        mine = drivers[drivers["style"] == group.style]
+        threshold_rows += _thresholds(group, mine, observed, weights, config)
+    thresholds = pd.DataFrame(threshold_rows, columns=list(THRESHOLD_COLUMNS))
+    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
+    thresholds["trusted"] = thresholds["style"].map(trusted).astype(bool)
+
+    labels = {s.name: s.label for s in model.specs}
+    return Profiles(
+        drivers=drivers, thresholds=thresholds, contrasts=contrasts(drivers, labels),
+        band_counts=_band_counts(groups, config), band_stats=_band_stats(groups, observed, config),
+    )
+
+
+def _band_counts(groups: list[Group], config: Config) -> pd.DataFrame:
+    labels = config.bands.labels
+    rows = []
+    for group in groups:
+        counts = {label: int((group.bands == i).sum()) for i, label in enumerate(labels)}
+        rows.append({"style": group.style, "n_lots": len(group.rows),
+                     "n_graded": int((group.bands >= 0).sum()), **counts,
+                     "trusted": group.trusted})
+    return pd.DataFrame(rows)
+
+
+def _band_stats(groups: list[Group], observed: dict[str, np.ndarray], config: Config
+                ) -> pd.DataFrame:
+    rows = []
+    for group in groups:
+        for analyte, values in observed.items():
+            for i, label in enumerate(config.bands.labels):
+                x = values[group.rows[group.bands == i]]
+                x = x[np.isfinite(x)]
+                q = np.quantile(x, [0.25, 0.5, 0.75]) if x.size else [np.nan] * 3
+                rows.append({"style": group.style, "analyte": analyte, "band": label,
+                             "n": int(x.size), "q25": q[0], "median": q[1], "q75": q[2]})
+    return pd.DataFrame(rows)
+
+
+def driver_summary(profiles: Profiles, model: StyleModel, top: int = 3) -> list[str]:
+    """Plain sentences: per trusted style its top drivers with direction and cut."""
+    names = model.style_names()
+    labels = {s.name: (s.label, s.unit) for s in model.specs}
+    out = []
+    thr = profiles.thresholds.set_index(["style", "analyte"])
+    for sid in model.style_ids:
+        part = profiles.drivers[(profiles.drivers["style"] == sid) & profiles.drivers["is_driver"]]
+        if not bool(model.styles.set_index("style").loc[sid, "trusted"]):
+            continue
+        part = part.sort_values("rank").head(top)
+        if part.empty:
+            out.append(f"{sid} ({names[sid]}): no analyte separates top from bottom lots.")
+            continue
+        bits = []
+        for row in part.itertuples():
+            label, unit = labels[row.analyte]
+            t = thr.loc[(sid, row.analyte)]
+            side = "at least" if t["direction"] == "higher_better" else "at most"
+            bits.append(f"{'higher' if row.cliffs_delta > 0 else 'lower'} {label} "
+                        f"(top lots {side} {t['cut']:.4g} {unit}; delta {row.cliffs_delta:+.2f})")
+        out.append(f"{sid} ({names[sid]}): " + "; ".join(bits) + ".")
+    return out
