@@ -212,6 +212,78 @@ def place(state: State, new: str, model_dir: str, config_path: str | None, out_d
     _say(f"wrote {out_dir}/")
 
 
+# --------------------------------------------------------------------------- brief
+
+
+@cli.command()
+@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
+@click.option("--profiles", "profiles_dir", default=None,
+              help="Folder with drivers.csv, thresholds.csv and contrasts.csv (from profile); "
+                   "computed from the model when left out and the lots have grades.")
+@click.option("--placements", "placements_dir", default=None,
+              help="Folder written by place, to add the new-lot pages.")
+@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_pdf", required=True, help="The PDF to write.")
+@click.pass_obj
+def brief(state: State, model_dir: str, profiles_dir: str | None, placements_dir: str | None,
+          config_path: str | None, out_pdf: str) -> None:
+    """Write the buyer briefing PDF."""
+    from vinstrata import pipeline
+    from vinstrata.model import load_model
+
+    rep = state.reporter()
+    model = load_model(model_dir)
+    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+    if profiles_dir:
+        profiles = pipeline.read_profile(profiles_dir)
+    else:
+        profiles = pipeline.profile(model, config) if model.has_grade else None
+    placements = pipeline.read_place(placements_dir) if placements_dir else None
+    with rep.stage("brief (PDF)"):
+        path = pipeline.brief(out_pdf, model, profiles, placements, config)
+    _summary(rep)
+    _say(f"wrote {path}")
+
+
+# --------------------------------------------------------------------------- run
+
+
+@cli.command()
+@click.argument("lots", required=False)
+@click.option("--new", "new_lots", default=None, help="New lots to place.")
+@click.option("--config", "config_path", help=CONFIG_HELP)
+@click.option("--out", "out_dir", default=None,
+              help="Output folder (default: a new vinstrata-run-N folder here).")
+@click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
+@click.option("--seed", type=int, default=None, help="Override the config's seed.")
+@click.pass_obj
+def run(state: State, lots: str | None, new_lots: str | None, config_path: str | None,
+        out_dir: str | None, sheet: str | None, seed: int | None) -> None:
+    """Check, segment, profile, place and brief in one go.
+
+    With no LOTS it runs on the shipped demo range and its new lots."""
+    from vinstrata import pipeline
+
+    rep = state.reporter()
+    out = Path(out_dir) if out_dir else pipeline.fresh_folder(Path.cwd())
+    if lots is None:
+        if new_lots is not None:
+            raise InputError("--new needs LOTS too (the demo range brings its own new lots)")
+        with rep.stage("write the demo range (Quillory Vale Wine Co., invented)"):
+            lots, new_lots = pipeline.demo_inputs(out / "input")
+        config = _config(config_path, seed, fallback="demo")
+    else:
+        config = _config(config_path, seed)
+    result = pipeline.run_all(lots, new_lots, config, out, rep, sheet=sheet)
+    _say(pipeline.describe_styles(result.model))
+    if result.placements is not None:
+        from vinstrata.place import describe
+
+        _say(describe(result.placements, limit=15))
+    _summary(rep)
+    _say(f"wrote {out}/ — briefing: {result.briefing}")
+
+
 # --------------------------------------------------------------------------- entry point
 
 

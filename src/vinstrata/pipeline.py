@@ -6,8 +6,11 @@ function writes one command's contract files.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
+
+import pandas as pd
 
 from vinstrata import quality
 from vinstrata.config import Config
@@ -149,3 +152,119 @@ def model_config(model: StyleModel, config: Config | None) -> Config:
                          f"{', '.join(missing) or 'none'}; not in the model "
                          f"{', '.join(extra) or 'none'}")
     return config
+
+
+def brief(path: str | Path, model: StyleModel, profiles: Profiles | None,
+          placements: Placements | None, config: Config | None = None) -> Path:
+    """Write the briefing PDF (see :func:`vinstrata.report.write_briefing`)."""
+    from vinstrata.report import write_briefing
+
+    return write_briefing(path, model, profiles, placements, config)
+
+
+def _read(folder: Path, name: str, command: str) -> pd.DataFrame:
+    path = folder / name
+    if not path.exists():
+        raise InputError(f"{folder}: no {name} (give the folder written by 'vinstrata "
+                         f"{command}')")
+    try:
+        return pd.read_csv(path, keep_default_na=False, na_values=[""])
+    except (pd.errors.ParserError, pd.errors.EmptyDataError, UnicodeDecodeError) as exc:
+        raise InputError(f"{path}: unreadable ({exc.__class__.__name__})") from None
+
+
+def _booleans(frame: pd.DataFrame, *columns: str) -> pd.DataFrame:
+    for column in columns:
+        if column in frame.columns:
+            frame[column] = frame[column].astype(str).str.lower().isin(["true", "1"])
+    return frame
+
+
+def read_profile(folder: str | Path) -> Profiles:
+    """Read the files written by :func:`write_profile` back."""
+    from vinstrata.profile import Profiles
+
+    folder = Path(folder)
+    frames = [_read(folder, name, "profile") for name in PROFILE_FILES]
+    drivers = _booleans(frames[0], "is_driver", "trusted")
+    drivers["note"] = drivers["note"].fillna("").astype(str)
+    thresholds = _booleans(frames[1], "trusted")
+    thresholds["direction"] = thresholds["direction"].fillna("").astype(str)
+    contrasts = frames[2].fillna("")
+    return Profiles(drivers=drivers, thresholds=thresholds, contrasts=contrasts,
+                    band_counts=_booleans(frames[3], "trusted"), band_stats=frames[4])
+
+
+def read_place(folder: str | Path) -> Placements:
+    """Read the files written by :func:`write_place` back."""
+    from vinstrata.place import Placements
+
+    folder = Path(folder)
+    frames = [_read(folder, name, "place") for name in PLACE_FILES]
+    lots = _booleans(frames[0], "atypical", "trusted")
+    for column in ("lot_id", "style", "indicative_band", "flags", "status"):
+        lots[column] = lots[column].fillna("").astype(str)
+    details = frames[1]
+    details["lot_id"] = details["lot_id"].astype(str)
+    for column in ("flags_text", "flags_short"):
+        details[column] = details[column].fillna("").astype(str)
+    return Placements(lots=lots, details=details, analytes=frames[2], neighbours=frames[3])
+
+
+# --------------------------------------------------------------------------- run
+
+
+@dataclass(frozen=True)
+class RunResult:
+    """What ``vinstrata run`` made."""
+
+    model: StyleModel
+    profiles: Profiles | None
+    placements: Placements | None
+    briefing: Path
+
+
+def fresh_folder(parent: Path) -> Path:
+    """A new ``vinstrata-run-N`` folder name under ``parent`` (not created)."""
+    n = 1
+    while (parent / f"vinstrata-run-{n}").exists():
+        n += 1
+    return parent / f"vinstrata-run-{n}"
+
+
+def demo_inputs(folder: Path) -> tuple[str, str]:
+    """Write the shipped demo range (the generator's defaults) and return its two files."""
+    from vinstrata.demo import generate_demo, write_demo
+
+    paths = write_demo(folder, generate_demo())
+    return str(paths["lots"]), str(paths["new_lots"])
+
+
+def run_all(lots: str | Path, new_lots: str | Path | None, config: Config, out: Path,
+            rep: Reporter, sheet: str | None = None) -> RunResult:
+    """Every stage in one go, every contract file written into ``out``."""
+    out.mkdir(parents=True, exist_ok=True)
+    with rep.stage("check: read and validate the lots"):
+        table = load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
+        write_check(table, out)
+    warn_rejections(table, rep)
+    with rep.stage("segment: transform, UMAP, HDBSCAN"):
+        model = segment(table, config, rep)
+        write_segment(model, out)
+    profiles = None
+    if model.has_grade:
+        with rep.stage("profile: effect sizes, bootstrap, thresholds"):
+            profiles = profile(model, config, rep)
+            write_profile(profiles, out)
+    else:
+        rep.warn("no grade column: styles only, no drivers profiled")
+    placements = None
+    if new_lots is not None:
+        with rep.stage("place: new lots against their styles"):
+            new_table = load_new(new_lots, model, config, sheet=sheet)
+            warn_rejections(new_table, rep)
+            placements = place(new_table, model, profiles, config, rep)
+            write_place(placements, out)
+    with rep.stage("brief: the PDF"):
+        path = brief(out / "briefing.pdf", model, profiles, placements, config)
+    return RunResult(model=model, profiles=profiles, placements=placements, briefing=path)

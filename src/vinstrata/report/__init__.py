@@ -1,0 +1,80 @@
+"""The buyer briefing: a PDF written with matplotlib's PDF backend.
+
+Pages, in order: cover; the map; how the styles were chosen; one card per
+style; where styles differ; new lots (map and table, when placements are
+given); data quality; methods and cautions; provenance. The page count is
+therefore 7 + the number of styles, plus 2 with new lots.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import os
+from pathlib import Path
+
+from vinstrata.config import Config
+from vinstrata.model import StyleModel
+from vinstrata.place import Placements
+from vinstrata.profile import Profiles
+from vinstrata.report import pages
+from vinstrata.report.pages import Briefing
+
+
+def briefing_date() -> str:
+    """Today, or the date of ``SOURCE_DATE_EPOCH`` when set (for reproducible files)."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    if epoch and epoch.isdigit():
+        return _dt.datetime.fromtimestamp(int(epoch), tz=_dt.timezone.utc).date().isoformat()
+    return _dt.date.today().isoformat()
+
+
+def page_count(n_styles: int, with_placements: bool) -> int:
+    """Pages of a briefing: 7 fixed pages, one per style, two more with new lots."""
+    return 7 + n_styles + (2 if with_placements else 0)
+
+
+def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | None = None,
+                   placements: Placements | None = None, config: Config | None = None) -> Path:
+    """Write the briefing PDF.
+
+    Parameters
+    ----------
+    path : str or Path
+        The PDF to write (its folder is created).
+    model : StyleModel
+    profiles : Profiles, optional
+        Drivers, thresholds and contrasts; without them the pages say so.
+    placements : Placements, optional
+        New lots; adds the two new-lot pages.
+    config : Config, optional
+        Report and band settings; the model's config when None.
+
+    Returns
+    -------
+    Path
+    """
+    from matplotlib.backends.backend_pdf import PdfPages
+
+    config = config or model.config
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    data = Briefing(
+        model=model, config=config, profiles=profiles, placements=placements,
+        date=briefing_date(), title=config.report.title,
+        foot=f"{config.report.title} · {model.source.name} · {briefing_date()}",
+        style_index={sid: i for i, sid in enumerate(model.style_ids)},
+    )
+    builders = [pages.cover, pages.maps, pages.segmentation]
+    builders += [lambda d, p, sid=sid: pages.style_card(d, sid, p) for sid in model.style_ids]
+    builders.append(pages.differences)
+    if placements is not None:
+        builders += [pages.new_lots_map, pages.new_lots_table]
+    builders += [pages.data_quality, pages.methods, pages.provenance]
+    metadata = {"Title": config.report.title, "Author": config.report.producer or "vinstrata",
+                "Creator": "vinstrata", "Producer": "vinstrata (matplotlib)",
+                "CreationDate": None, "ModDate": None}
+    with PdfPages(path, metadata=metadata) as pdf:
+        for number, build in enumerate(builders, start=1):
+            figure = build(data, number)
+            pdf.savefig(figure, dpi=150)
+    return path

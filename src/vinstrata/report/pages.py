@@ -1,0 +1,629 @@
+"""The pages of the buyer briefing, one function per page, each returning a Figure.
+
+Every page function takes a :class:`Briefing` (plain data gathered once) and a
+page number. Scatter layers are rasterised so that the PDF stays small with
+many lots; text stays vector.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
+
+from vinstrata.bands import assign_bands
+from vinstrata.cells import CENSORED_ABOVE, CENSORED_BELOW, MISSING
+from vinstrata.config import Config
+from vinstrata.limits import CAUTION
+from vinstrata.model import UNASSIGNED, StyleModel
+from vinstrata.place import INDICATION, Placements
+from vinstrata.profile import POOLED, Profiles, driver_summary
+from vinstrata.quality import reason_counts
+from vinstrata.report.layout import (
+    INK, MARGIN, MUTED, UNASSIGNED_COLOUR, WARN_COLOUR, band_colours, footer, heading,
+    new_page, style_colour, text_block, tidy, wrap,
+)
+
+MAX_TABLE_ROWS = 44
+MAX_LABELLED = 60
+
+
+@dataclass(frozen=True)
+class Briefing:
+    """Everything the pages draw, gathered once."""
+
+    model: StyleModel
+    config: Config
+    profiles: Profiles | None
+    placements: Placements | None
+    date: str
+    title: str
+    foot: str = ""
+    style_index: dict[str, int] = field(default_factory=dict)
+
+    @property
+    def styles(self) -> pd.DataFrame:
+        return self.model.styles
+
+    def colour(self, style: str) -> str:
+        if style not in self.style_index:
+            return UNASSIGNED_COLOUR
+        return style_colour(self.style_index[style])
+
+    def label(self, analyte: str) -> str:
+        spec = self.model.spec(analyte)
+        return spec.label
+
+    def axis_label(self, analyte: str) -> str:
+        spec = self.model.spec(analyte)
+        return f"{spec.label} ({spec.unit})" if spec.unit else spec.label
+
+
+def _finish(fig: Figure, data: Briefing, page: int) -> Figure:
+    footer(fig, data.foot, page)
+    return fig
+
+
+def _untrusted(data: Briefing) -> pd.DataFrame:
+    return data.styles[~data.styles["trusted"].astype(bool)]
+
+
+# --------------------------------------------------------------------------- cover
+
+
+def cover(data: Briefing, page: int) -> Figure:
+    model, config = data.model, data.config
+    fig = new_page(data.title, config.report.producer)
+    rows = model.rows
+    n_rows, n_used = len(rows), int((rows["status"] == "used").sum())
+    unassigned = int((model.lots["style"] == UNASSIGNED).sum())
+    trusted = int(data.styles["trusted"].sum())
+    y = heading(fig, 0.895, "The range")
+    facts = [
+        f"File {model.source.name}: {n_rows} rows read, {n_used} lots used, "
+        f"{n_rows - n_used} rejected (see the data-quality page).",
+        f"{len(data.styles)} styles found from the chemistry alone ({trusted} trusted, "
+        f"{len(data.styles) - trusted} untrusted); {unassigned} lots fit no style.",
+        f"Briefing of {data.date}.",
+    ]
+    y, _ = text_block(fig, y, facts, size=9.5)
+    y = heading(fig, y - 0.01, "Styles")
+    lines = [f"{r.style}  {r.style_name}  —  {r.n_lots} lots ({100 * r.share:.0f} %)"
+             + ("" if r.trusted else "  —  UNTRUSTED") for r in data.styles.itertuples()]
+    y, _ = text_block(fig, y, lines, size=9, gap=0.1)
+    y = heading(fig, y - 0.01, "Key findings")
+    if data.profiles is None:
+        findings = ["No grades were given, so no quality drivers were profiled."]
+    else:
+        findings = driver_summary(data.profiles, model, config.report.top_drivers)
+        notable = data.profiles.contrasts[data.profiles.contrasts["kind"].isin(
+            ["reversal", "pooled_misleading"])]
+        findings += list(notable["sentence"])
+    y, written = text_block(fig, y, findings, size=8.5, bullet="• ", bottom=0.19)
+    if written < len(findings):
+        y, _ = text_block(fig, y, [f"... {len(findings) - written} more findings on the "
+                                   "'where styles differ' page and in contrasts.csv."], size=8,
+                          bottom=0.1)
+    warn = _untrusted(data)
+    if len(warn):
+        y = heading(fig, max(y, 0.16) - 0.005, "Too small to trust", size=10)
+        text_block(fig, y, [f"{r.style}: {r.trust_note}" for r in warn.itertuples()], size=8.5,
+                   bottom=0.08, bullet="• ")
+    text_block(fig, 0.07, ["Styles are found from chemistry alone; effects describe these "
+                           "lots, not causes. " + CAUTION], size=7.5, bottom=0.03)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- maps
+
+
+def _map_axes(fig: Figure, rect: list[float]):
+    ax = fig.add_axes(rect)
+    tidy(ax)
+    ax.set_xlabel("UMAP 1 (arbitrary units)", fontsize=7)
+    ax.set_ylabel("UMAP 2 (arbitrary units)", fontsize=7)
+    return ax
+
+
+def maps(data: Briefing, page: int) -> Figure:
+    model = data.model
+    fig = new_page("The range on one map",
+                   "Each dot is a lot; nearby lots have similar chemistry. Grey: lots that fit "
+                   "no style.")
+    lots = model.lots
+    x, y = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
+    style = lots["style"].to_numpy(dtype=object)
+    size = float(np.clip(10000 / max(len(lots), 1), 0.4, 14))
+    ax = _map_axes(fig, [0.1, 0.51, 0.62, 0.37])
+    ax.set_title("coloured by style", fontsize=9, loc="left")
+    un = style == UNASSIGNED
+    for sid in model.style_ids:
+        mask = style == sid
+        ax.scatter(x[mask], y[mask], s=size, c=data.colour(sid), linewidths=0, rasterized=True)
+        if mask.any():
+            ax.text(np.median(x[mask]), np.median(y[mask]), sid, fontsize=8, fontweight="bold",
+                    ha="center", va="center", color=INK,
+                    bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": data.colour(sid),
+                          "alpha": 0.7})
+    # unassigned lots on top, small and grey, so that the few there are stay visible
+    ax.scatter(x[un], y[un], s=max(size, 3.0), c="#777777", marker="x", linewidths=0.5,
+               rasterized=True)
+    legend_y = 0.88
+    for r in data.styles.itertuples():
+        fig.text(0.75, legend_y, "●", color=data.colour(r.style), fontsize=10, va="top")
+        text_block(fig, legend_y, [f"{r.style} {r.style_name} ({r.n_lots})"], size=7,
+                   width=30, left=0.775, gap=0.1)
+        legend_y -= 0.045
+    ax2 = _map_axes(fig, [0.1, 0.07, 0.62, 0.37])
+    ax2.set_title("coloured by grade band", fontsize=9, loc="left")
+    grades = lots["grade"].to_numpy(dtype=float)
+    labels = data.config.bands.labels
+    if np.isfinite(grades).any():
+        bands = assign_bands(grades, style, data.config.bands)
+        colours = band_colours(len(labels))
+        ax2.scatter(x[bands < 0], y[bands < 0], s=size * 0.7, c=UNASSIGNED_COLOUR,
+                    linewidths=0, rasterized=True)
+        for b in range(len(labels)):
+            mask = bands == b
+            ax2.scatter(x[mask], y[mask], s=size, c=colours[b], linewidths=0, rasterized=True,
+                        label=f"{labels[b]} ({int(mask.sum())})")
+        ax2.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1),
+                   markerscale=max(1.0, 6 / max(size, 0.1)))
+        mode = ("global cuts " + ", ".join(f"{c:g}" for c in data.config.bands.cuts)
+                if data.config.bands.mode == "global" else
+                "per-style quantiles " + ", ".join(f"{q:g}" for q in data.config.bands.quantiles))
+        fig.text(0.75, 0.3, f"Bands: {mode}.", fontsize=7, color=MUTED, wrap=True)
+    else:
+        ax2.scatter(x, y, s=size, c=UNASSIGNED_COLOUR, linewidths=0, rasterized=True)
+        ax2.text(0.5, 0.5, "no grades in this range", transform=ax2.transAxes, ha="center",
+                 fontsize=10, color=MUTED)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- segmentation choice
+
+
+def segmentation(data: Briefing, page: int) -> Figure:
+    model = data.model
+    params = model.params
+    fig = new_page("How the styles were chosen",
+                   "HDBSCAN cluster size picked by relative validity; clusters without a "
+                   "chemical valley between them joined.")
+    sweep = model.sweep
+    ax = fig.add_axes([0.12, 0.56, 0.74, 0.3])
+    tidy(ax)
+    sizes = sweep["min_cluster_size"].to_numpy()
+    validity = sweep["relative_validity"].to_numpy(dtype=float)
+    ax.plot(sizes, validity, "-o", color="#0072B2", markersize=4, label="relative validity")
+    chosen = sweep["chosen"].astype(bool).to_numpy()
+    ax.plot(sizes[chosen], validity[chosen], "o", markersize=11, markerfacecolor="none",
+            markeredgecolor=WARN_COLOUR, label="chosen")
+    for s, v, k in zip(sizes, validity, sweep["n_styles"]):
+        if np.isfinite(v):
+            ax.annotate(f"{k} styles", (s, v), textcoords="offset points", xytext=(0, 6),
+                        fontsize=6, ha="center", color=MUTED)
+    if len(sizes) > 1:
+        ax.set_xscale("log")
+        ax.set_xticks(sizes, [str(v) for v in sizes])
+        ax.minorticks_off()
+    ax.set_xlabel("HDBSCAN min_cluster_size (lots)", fontsize=8)
+    ax.set_ylabel("relative validity (DBCV approximation, no unit)", fontsize=8)
+    twin = ax.twinx()
+    twin.plot(sizes, 100 * sweep["unassigned_share"].to_numpy(dtype=float), "--s",
+              color="#E69F00", markersize=3, label="unassigned")
+    twin.set_ylabel("lots left unassigned by HDBSCAN (%)", fontsize=8)
+    twin.tick_params(labelsize=7)
+    handles = ax.get_legend_handles_labels()[0] + twin.get_legend_handles_labels()[0]
+    ax.legend(handles, ["relative validity", "chosen", "unassigned (%)"], fontsize=7,
+              frameon=False, loc="lower left")
+    choice = ("swept" if params["size_choice"] == "sweep" else "fixed in the config")
+    text = [
+        f"Clustering space: {'UMAP, ' + str(params['components']) + ' components' if params['space'] == 'umap' else 'the scaled chemistry itself'}; "  # noqa: E501
+        f"{params['neighbours']} neighbours, {params['epochs']} epochs, seed {params['seed']}.",
+        f"min_cluster_size {params['min_cluster_size']} ({choice}), min_samples "
+        f"{params['min_samples']}: HDBSCAN found {params['n_clusters']} clusters, which became "
+        f"{len(model.style_ids)} styles after joining clusters with no valley between them in "
+        f"the chemistry (threshold {params['merge_valley']:g}).",
+        "The pick: the highest relative validity of the joined clusters; candidates within 0.02 "
+        "of the best count as ties and go to fewer unassigned lots, then to the larger size.",
+        "Lots that fit no style are judged in the scaled chemistry (robust Mahalanobis distance "
+        f"to the style, as a z score; above {model.outliers['cutoff']:g}: unassigned), because "
+        "UMAP pulls unusual lots into the nearest cluster.",
+    ]
+    if params.get("one_style"):
+        text.append("No candidate kept two styles apart: the range is reported as one style.")
+    y, _ = text_block(fig, 0.47, text, size=9)
+    rows = [f"{'size':>6} {'samples':>8} {'clusters':>9} {'styles':>7} {'unassigned':>11} "
+            f"{'validity':>9}"]
+    for r in sweep.itertuples():
+        mark = "  <- chosen" if r.chosen else ""
+        v = f"{r.relative_validity:.3f}" if np.isfinite(r.relative_validity) else "-"
+        rows.append(f"{r.min_cluster_size:>6} {r.min_samples:>8} {r.n_clusters:>9} "
+                    f"{r.n_styles:>7} {100 * r.unassigned_share:>10.1f}% {v:>9}{mark}")
+    for k, line in enumerate(rows):
+        fig.text(MARGIN + 0.05, y - 0.02 - k * 0.018, line, fontsize=8, family="monospace",
+                 color=INK, va="top")
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- style cards
+
+
+def style_card(data: Briefing, sid: str, page: int) -> Figure:
+    model, config = data.model, data.config
+    row = data.styles.set_index("style").loc[sid]
+    fig = new_page(f"{sid} · {row['style_name']}",
+                   f"{int(row['n_lots'])} lots, {100 * row['share']:.1f} % of the range"
+                   + (" · trusted" if row["trusted"] else ""))
+    fig.add_artist(Rectangle((MARGIN - 0.022, 0.935), 0.012, 0.032, transform=fig.transFigure,
+                             color=data.colour(sid)))
+    top = 0.895
+    if not row["trusted"]:
+        fig.text(MARGIN, top, "UNTRUSTED STYLE", fontsize=16, fontweight="bold",
+                 color=WARN_COLOUR, va="top")
+        text_block(fig, top - 0.03, [f"Why: {row['trust_note']}. Its numbers are shown for "
+                                     "completeness and should not guide decisions."],
+                   size=10.5, width=85)
+        top -= 0.08
+    stats = model.style_stats[model.style_stats["style"] == sid].set_index("analyte")
+    analytes = list(model.analytes)
+    ax = fig.add_axes([0.2, top - 0.36, 0.27, 0.33])
+    tidy(ax)
+    z = stats.loc[analytes, "robust_z"].to_numpy(dtype=float)
+    pos = np.arange(len(analytes))[::-1]
+    ax.barh(pos, z, color=data.colour(sid), height=0.7)
+    ax.axvline(0, color="#999999", linewidth=0.6)
+    ax.set_yticks(pos, [data.label(a) for a in analytes], fontsize=7)
+    ax.set_xlabel("style median vs range\n(robust z, IQR units)", fontsize=7)
+    ax.set_title("chemistry fingerprint", fontsize=8, loc="left")
+    ax2 = fig.add_axes([0.66, top - 0.36, 0.3, 0.33])
+    tidy(ax2)
+    ax2.set_title("drivers: Cliff's delta, top vs bottom", fontsize=8, loc="left")
+    drivers = None
+    if data.profiles is not None:
+        d = data.profiles.drivers
+        drivers = d[d["style"] == sid].set_index("analyte")
+        for k, a in enumerate(analytes):
+            r = drivers.loc[a]
+            yk = pos[k]
+            if not np.isfinite(r["cliffs_delta"]):
+                ax2.text(0, yk, "insufficient", fontsize=6, color=MUTED, ha="center",
+                         va="center")
+                continue
+            colour = data.colour(sid) if r["is_driver"] else "#999999"
+            ax2.plot([r["ci_low"], r["ci_high"]], [yk, yk], color=colour, linewidth=1.4)
+            ax2.plot([r["cliffs_delta"]], [yk], "o", markersize=5,
+                     markerfacecolor=colour if r["is_driver"] else "white",
+                     markeredgecolor=colour)
+        ax2.set_xlim(-1, 1)
+        ax2.set_ylim(-0.7, len(analytes) - 0.3)
+        ax2.axvline(0, color="#999999", linewidth=0.6)
+        ax2.set_yticks(pos, [data.label(a) for a in analytes], fontsize=7)
+        ax2.set_xlabel("Cliff's delta (no unit), 95 % CI\nfilled: driver (q < "
+                       f"{config.profile.fdr:g}, CI excludes 0)", fontsize=7)
+    else:
+        ax2.text(0.5, 0.5, "no grades: not profiled", transform=ax2.transAxes, ha="center",
+                 fontsize=9, color=MUTED)
+        ax2.set_yticks([])
+    if drivers is not None:
+        _driver_panels(fig, data, sid, drivers, top - 0.43)
+    return _finish(fig, data, page)
+
+
+def _driver_panels(fig: Figure, data: Briefing, sid: str, drivers: pd.DataFrame,
+                   top: float) -> None:
+    config = data.config
+    model = data.model
+    chosen = drivers[drivers["is_driver"].astype(bool)].sort_values("rank").head(
+        config.report.top_drivers)
+    if drivers["cliffs_delta"].isna().all():
+        text_block(fig, top, ["Too few lots in the top or bottom band to profile this style: "
+                              "no effect size is given (see the note in drivers.csv)."], size=9)
+        return
+    if chosen.empty:
+        text_block(fig, top, ["No analyte separates top from bottom lots in this style at the "
+                              f"false discovery rate {config.profile.fdr:g}."], size=9)
+        return
+    thresholds = data.profiles.thresholds.set_index(["style", "analyte"])
+    lots = model.lots
+    home = lots["style"].to_numpy(dtype=object)
+    if config.profile.include_unassigned:
+        home = np.where(home == UNASSIGNED, lots["nearest_style"].to_numpy(dtype=object), home)
+    mask = home == sid
+    bands = assign_bands(lots["grade"].to_numpy(dtype=float), home, config.bands)[mask]
+    labels = config.bands.labels
+    colours = band_colours(len(labels))
+    width = 0.84 / len(chosen)
+    fig.text(MARGIN, top + 0.005, "Top drivers by band (dashed: the Youden cut; shaded: the top "
+             "band's target window)", fontsize=8, color=INK)
+    for k, analyte in enumerate(chosen.index):
+        ax = fig.add_axes([0.1 + k * width, 0.1, width - 0.08, top - 0.14])
+        tidy(ax)
+        values = model.values[analyte].to_numpy(dtype=float)[mask]
+        missing = (model.flags[analyte] == MISSING).to_numpy()[mask]
+        groups = [values[(bands == b) & ~missing & np.isfinite(values)]
+                  for b in range(len(labels))]
+        parts = ax.boxplot([g if g.size else [np.nan] for g in groups], widths=0.55,
+                           patch_artist=True, showfliers=False)
+        for patch, colour in zip(parts["boxes"], colours):
+            patch.set_facecolor(colour)
+            patch.set_alpha(0.55)
+        t = thresholds.loc[(sid, analyte)]
+        if np.isfinite(t["target_low"]):
+            ax.axhspan(t["target_low"], t["target_high"], color="#0072B2", alpha=0.08)
+        if np.isfinite(t["cut"]):
+            ax.axhline(t["cut"], color=INK, linestyle="--", linewidth=0.9)
+            side = "≥" if t["direction"] == "higher_better" else "≤"
+            ax.set_title(f"{data.label(analyte)}: top {side} {t['cut']:.4g}\n"
+                         f"J {t['youden_j']:.2f}, AUC {t['auc']:.2f}", fontsize=7, loc="left")
+        ax.set_xticks(range(1, len(labels) + 1),
+                      [f"{lab}\n(n={g.size})" for lab, g in zip(labels, groups)], fontsize=6)
+        ax.set_ylabel(data.axis_label(analyte), fontsize=7)
+        ax.set_xlabel("grade band", fontsize=7)
+
+
+# --------------------------------------------------------------------------- where styles differ
+
+
+def differences(data: Briefing, page: int) -> Figure:
+    fig = new_page("Where styles differ",
+                   "Cliff's delta of top vs bottom band per style and analyte; the pooled range "
+                   "beside it. ● driver, ○ no clear effect, blank: insufficient lots.")
+    if data.profiles is None:
+        text_block(fig, 0.88, ["No grades were given, so styles could not be compared on "
+                               "their drivers."], size=10)
+        return _finish(fig, data, page)
+    drivers = data.profiles.drivers
+    contrasts = data.profiles.contrasts
+    analytes = list(dict.fromkeys(drivers["analyte"]))
+    rows = [*data.model.style_ids, POOLED]
+    grid = np.full((len(rows), len(analytes)), np.nan)
+    mark = np.full(grid.shape, "", dtype=object)
+    table = drivers.set_index(["style", "analyte"])
+    for i, sid in enumerate(rows):
+        for j, a in enumerate(analytes):
+            r = table.loc[(sid, a)]
+            grid[i, j] = r["cliffs_delta"]
+            if np.isfinite(r["cliffs_delta"]):
+                mark[i, j] = "●" if r["is_driver"] else "○"
+    ax = fig.add_axes([0.2, 0.52, 0.7, 0.36])
+    image = ax.imshow(grid, cmap="PuOr_r", vmin=-1, vmax=1, aspect="auto")
+    for i in range(len(rows)):
+        for j in range(len(analytes)):
+            if mark[i, j]:
+                ax.text(j, i, mark[i, j], ha="center", va="center", fontsize=7,
+                        color="white" if abs(grid[i, j]) > 0.55 else INK)
+    ax.axhline(len(rows) - 1.5, color=INK, linewidth=1.2)
+    untrusted = set(_untrusted(data)["style"])
+    ax.set_yticks(range(len(rows)), [f"{s}{' (untrusted)' if s in untrusted else ''}"
+                                     if s != POOLED else "pooled (all)" for s in rows],
+                  fontsize=7)
+    ax.set_xticks(range(len(analytes)), [data.label(a) for a in analytes], fontsize=7,
+                  rotation=55, ha="right")
+    reversed_ = set(contrasts.loc[contrasts["kind"] == "reversal", "analyte"])
+    for j, a in enumerate(analytes):
+        if a in reversed_:
+            ax.add_patch(Rectangle((j - 0.5, -0.5), 1, len(rows) - 1, fill=False,
+                                   edgecolor=WARN_COLOUR, linewidth=1.6))
+    bar = fig.colorbar(image, ax=ax, fraction=0.04, pad=0.02)
+    bar.set_label("Cliff's delta (no unit): + higher value in top lots", fontsize=7)
+    bar.ax.tick_params(labelsize=6)
+    fig.text(0.2, 0.395, "Red frame: a reversal (a driver in opposite directions in two "
+             "trusted styles).", fontsize=7, color=WARN_COLOUR)
+    y = heading(fig, 0.375, "What the comparisons say", size=10)
+    priority = {"reversal": 0, "pooled_misleading": 1, "style_specific": 2}
+    ordered = contrasts.assign(_p=contrasts["kind"].map(priority)).sort_values("_p", kind="stable")
+    sentences = [f"[{k.replace('_', ' ')}] {s}" for k, s in
+                 zip(ordered["kind"], ordered["sentence"])]
+    if not sentences:
+        sentences = ["No analyte drives the grade differently between trusted styles."]
+    y, written = text_block(fig, y, sentences, size=7.5, bullet="• ", width=120, gap=0.15,
+                            bottom=0.075)
+    if written < len(sentences):
+        text_block(fig, y, [f"... {len(sentences) - written} more in contrasts.csv."], size=7.5,
+                   bottom=0.03)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- new lots
+
+
+def new_lots_map(data: Briefing, page: int) -> Figure:
+    placements = data.placements
+    fig = new_page("New lots against the range",
+                   "Grey: historical lots. Coloured: new lots in their style; black ×: fits no "
+                   "style; ringed: atypical.")
+    if placements is None or not len(placements.details):
+        text_block(fig, 0.88, ["No new lot could be placed: every row was rejected (see "
+                               "placements.csv for the reasons)."], size=10)
+        return _finish(fig, data, page)
+    model = data.model
+    lots = model.lots
+    ax = _map_axes(fig, [0.1, 0.3, 0.82, 0.6])
+    ax.scatter(lots["map_x"], lots["map_y"], s=2, c="#DDDDDD", linewidths=0, rasterized=True)
+    details = placements.details
+    used = placements.lots[placements.lots["status"] == "used"].set_index("lot_id")
+    labelled = 0
+    for r in details.itertuples():
+        style = r.style
+        atyp = bool(used.loc[r.lot_id, "atypical"])
+        if style == UNASSIGNED:
+            ax.scatter([r.map_x], [r.map_y], marker="x", s=28, c="black", linewidths=1.2)
+        else:
+            ax.scatter([r.map_x], [r.map_y], s=22, c=data.colour(style), edgecolors=INK,
+                       linewidths=0.4)
+        if atyp:
+            ax.scatter([r.map_x], [r.map_y], s=90, facecolors="none", edgecolors=WARN_COLOUR,
+                       linewidths=1.0)
+        if len(details) <= MAX_LABELLED or (atyp and labelled < MAX_LABELLED):
+            ax.annotate(str(r.lot_id), (r.map_x, r.map_y), fontsize=5, xytext=(3, 3),
+                        textcoords="offset points", color=INK)
+            labelled += 1
+    n_atyp = int(used["atypical"].astype(bool).sum())
+    text_block(fig, 0.25, [
+        f"{len(details)} new lots placed, {n_atyp} atypical; "
+        f"{int((placements.lots['status'] != 'used').sum())} rows rejected.",
+        "A new lot's position is the weighted mean of its nearest historical lots' positions "
+        "(UMAP's own start for new points).",
+    ], size=8.5)
+    return _finish(fig, data, page)
+
+
+def new_lots_table(data: Briefing, page: int) -> Figure:
+    placements = data.placements
+    fig = new_page("New lots: style, typicality, indicative band, flags",
+                   f"Band: {INDICATION}. {CAUTION}")
+    used = placements.lots[placements.lots["status"] == "used"]
+    if not len(placements.details):
+        text_block(fig, 0.88, ["No new lot could be placed."], size=10)
+        return _finish(fig, data, page)
+    details = placements.details.set_index("lot_id")
+    header = f"{'lot':<14}{'style':<10}{'atypical':<10}{'band (top share)':<18}flags"
+    fig.text(MARGIN, 0.91, header, fontsize=7, family="monospace", fontweight="bold", va="top")
+    y = 0.89
+    ordered = pd.concat([used[used["atypical"].astype(bool)], used[~used["atypical"].astype(bool)]])
+    for r in ordered.head(MAX_TABLE_ROWS).itertuples():
+        band = (f"{r.indicative_band} ({r.share_top:.0%})" if r.indicative_band else "-")
+        flags = details.loc[r.lot_id, "flags_short"]
+        style = "no style" if r.style == UNASSIGNED else r.style
+        first = f"{str(r.lot_id)[:13]:<14}{style:<10}{'YES' if r.atypical else '':<10}" \
+                f"{band[:17]:<18}"
+        chunks = wrap(str(flags), 62)
+        if len(chunks) > 2:
+            chunks = [chunks[0], chunks[1][:58] + " ..."]
+        for k, chunk in enumerate(chunks):
+            prefix = first if k == 0 else " " * len(first)
+            fig.text(MARGIN, y, prefix + chunk, fontsize=6.5, family="monospace",
+                     color=WARN_COLOUR if r.atypical and k == 0 else INK, va="top")
+            y -= 0.0175
+        if y < 0.07:
+            break
+    shown = min(len(ordered), MAX_TABLE_ROWS)
+    if len(ordered) > shown:
+        fig.text(MARGIN, 0.05, f"... {len(ordered) - shown} more lots in placements.csv "
+                 "(atypical lots listed first).", fontsize=7, color=MUTED)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- data quality
+
+
+def data_quality(data: Briefing, page: int) -> Figure:
+    model = data.model
+    fig = new_page("Data quality", "Every input row is accounted for: rows read = used + "
+                   "rejected.")
+    rows = model.rows
+    n, used = len(rows), int((rows["status"] == "used").sum())
+    counts = reason_counts(rows["status"])
+    y, _ = text_block(fig, 0.9, [
+        f"{model.source.name}: {n} rows read, {used} used, {n - used} rejected.",
+        "Rejected rows keep their place in every per-lot file with their reason as status; "
+        "row_status.csv names the row, the column and the value.",
+    ], size=9)
+    if len(counts):
+        ax = fig.add_axes([0.3, y - 0.2, 0.6, 0.18])
+        tidy(ax)
+        ax.barh(range(len(counts)), counts.to_numpy(), color="#D55E00")
+        ax.set_yticks(range(len(counts)), list(counts.index), fontsize=7)
+        ax.set_xlabel("rejected rows (count)", fontsize=7)
+        y -= 0.24
+    y = heading(fig, y, "Per analyte (used lots)", size=10)
+    header = f"{'analyte':<24}{'unit':<30}{'imputed':>9}{'censored':>10}{'measured':>10}"
+    fig.text(MARGIN, y, header, fontsize=7.5, family="monospace", fontweight="bold", va="top")
+    y -= 0.02
+    for spec in model.specs:
+        flags = model.flags[spec.name]
+        imputed = int((flags == MISSING).sum())
+        censored = int(flags.isin([CENSORED_BELOW, CENSORED_ABOVE]).sum())
+        unit = spec.unit if spec.unit_in == spec.unit else f"{spec.unit_in} -> {spec.unit}"
+        dropped = " (constant: dropped)" if spec.name in model.scaler.dropped else ""
+        fig.text(MARGIN, y, f"{spec.name[:23]:<24}{unit[:29]:<30}{imputed:>9}{censored:>10}"
+                            f"{len(flags) - imputed - censored:>10}{dropped}",
+                 fontsize=7.5, family="monospace", va="top")
+        y -= 0.018
+    text_block(fig, y - 0.02, [
+        "Imputed: missing cells of used lots, filled from the 5 most similar lots (scaled "
+        "chemistry) for the styles only; profiles leave them out.",
+        "Censored: values written below (or above) a detection limit, stored by the "
+        f"'{data.config.ingest.censored}' rule and flagged per cell.",
+    ], size=8)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- methods and cautions
+
+
+METHODS = (
+    "Styles come from the chemistry alone: grades never shape them. Each analyte is "
+    "log-transformed when strongly right-skewed, then scaled by its median and interquartile "
+    "range; UMAP reduces the scaled chemistry to a clustering space and HDBSCAN finds dense "
+    "groups there. A style is a group of lots whose chemistry resembles each other's more than "
+    "the rest of the range; it need not match a commercial category.",
+    "Grade bands: lots are compared top band against bottom band inside each style. Cliff's "
+    "delta is the probability that a top lot has the higher value minus the probability that "
+    "it has the lower (from -1 to +1; Romano et al. 2006 call |delta| below 0.147 negligible, "
+    "below 0.33 small, below 0.474 medium, above large). Its 95 % interval comes from a "
+    "seeded bootstrap. Hedges' g is the standardised mean difference.",
+    "A driver is an analyte whose top and bottom lots differ beyond chance: its Mann-Whitney "
+    "p-value, corrected for all the tests of the briefing by the Benjamini-Hochberg false "
+    "discovery rate, is below the set level and its delta interval excludes 0. A driver "
+    "describes an association in these lots; it is not proof that changing the analyte "
+    "changes the grade.",
+    "Thresholds: the Youden cut is the value that best separates top from bottom lots "
+    "(maximum sensitivity + specificity - 1); the target window is the central 80 % of the top "
+    "band's values. Neither is a specification: lots on the wrong side of a cut can grade well "
+    "and the reverse.",
+    "Sample sizes: a band with fewer than the minimum number of lots gets no effect size "
+    "('insufficient'), and a style that is small or has too few top or bottom lots is marked "
+    "untrusted; its numbers are shown but should not guide decisions. Pooled results over the "
+    "whole range mix styles and can hide a driver or reverse it; the 'where styles differ' page "
+    "says where.",
+    "New lots: a new lot is placed among the historical lots by its chemistry; 'atypical' "
+    "means its chemistry is unusual for its style (outlier score above the 95th percentile of "
+    "the historical lots), 'fits no style' that it resembles none. The indicative band is the "
+    "share of its nearest historical lots of the same style in each band: an indication from "
+    "neighbours, not a forecast of its grade.",
+    "Screening limits (volatile acidity and total SO2 maxima, the sulfite labelling line, a "
+    "low molecular SO2 warning) are screening flags only, never compliance verdicts: certified "
+    "laboratory analyses and the local regulations decide.",
+)
+
+
+def methods(data: Briefing, page: int) -> Figure:
+    fig = new_page("Methods and cautions", "What the numbers mean, and what they do not.")
+    text_block(fig, 0.9, list(METHODS), size=9, width=100, gap=0.6)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- provenance
+
+
+def provenance(data: Briefing, page: int) -> Figure:
+    model = data.model
+    fig = new_page("Provenance", "Same input, config and seed give the same outputs.")
+    source = model.source
+    params = model.params
+    lines = [
+        f"input file: {source.name} ({source.format}"
+        + (f", {source.delimiter}-delimited" if source.delimiter else "")
+        + (f", sheet {source.sheet}" if source.sheet else "") + ")",
+        f"input SHA-256: {source.sha256}",
+        f"config: {data.config.source}",
+        f"seed: {data.config.seed}",
+        f"clustering: space {params['space']}, components {params['components']}, neighbours "
+        f"{params['neighbours']}, epochs {params['epochs']}, min_cluster_size "
+        f"{params['min_cluster_size']}, min_samples {params['min_samples']}",
+        "software: " + ", ".join(f"{k} {v}" for k, v in model.versions.items()),
+    ]
+    y, _ = text_block(fig, 0.9, lines, size=8.5, width=110, gap=0.2)
+    y = heading(fig, y - 0.01, "Configuration used", size=10)
+    config_text = json.dumps(data.config.to_dict(), indent=None, sort_keys=True)
+    config_lines = []
+    for key, value in json.loads(config_text).items():
+        config_lines.append(f"{key}: {json.dumps(value, sort_keys=True)}")
+    text_block(fig, y, config_lines, size=6.5, width=150, gap=0.15, bottom=0.04)
+    return _finish(fig, data, page)
