@@ -115,7 +115,7 @@ def memberships(neighbours: Neighbours, sigmas: np.ndarray, rhos: np.ndarray,
                 self_loops: bool = False) -> np.ndarray:
     """Fuzzy membership of each listed neighbour: exp(-(d - rho) / sigma), 1 within rho."""
     d = neighbours.distances.astype(np.float32)
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         vals = np.exp(-((d - rhos[:, None]) / sigmas[:, None]))
     vals = np.where((d - rhos[:, None] <= 0) | (sigmas[:, None] == 0), 1.0, vals)
     if not self_loops:

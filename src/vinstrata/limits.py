@@ -36,6 +36,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from vinstrata.analytes import normalise_name
 from vinstrata.config import Limits, LimitSet
 from vinstrata.derive import molecular_so2
 from vinstrata.lots import AnalyteSpec
@@ -60,7 +61,7 @@ MARKETS: dict[str, LimitSet] = {
 MARKET_NAMES = {"eu": "EU", "oiv": "OIV", "us": "US federal"}
 _COLOURS = {"red": "red", "rouge": "red", "tinto": "red", "rosso": "red", "rot": "red",
             "white": "white", "blanc": "white", "blanco": "white", "bianco": "white",
-            "weiss": "white", "rose": "rose", "rosé": "rose", "rosado": "rose", "rosato": "rose",
+            "weiss": "white", "rose": "rose", "rosado": "rose", "rosato": "rose",
             "pink": "rose", "blush": "rose"}
 
 
@@ -73,8 +74,8 @@ def limit_set(settings: Limits) -> LimitSet | None:
 
 
 def normalise_colour(value: object) -> str:
-    """"red", "white", "rose" or "" from what a colour column holds."""
-    return _COLOURS.get(str(value).strip().lower(), "")
+    """"red", "white", "rose" or "" from what a colour column holds (case and accents ignored)."""
+    return _COLOURS.get(normalise_name(str(value)), "")
 
 
 @dataclass(frozen=True)

@@ -205,6 +205,9 @@ def load_model(folder: str | Path) -> StyleModel:
         except ValueError as exc:
             raise InputError(f"{path}: unreadable array ({exc})") from None
     n = len(parts["lots"])
+    if parts["extra"].shape[1] == 0:
+        # a table without columns keeps no row count in Parquet
+        parts["extra"] = pd.DataFrame(index=pd.RangeIndex(len(parts["rows"])))
     for name in ("values", "flags", "scaled", "space", "map2d", "clusters", "memberships"):
         if len(parts[name]) != n:
             raise InputError(f"{folder}: model file {name} holds {len(parts[name])} lots, "

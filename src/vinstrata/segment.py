@@ -9,8 +9,8 @@
 4. one style split in two by the embedding is joined again. UMAP with
    min_dist 0 tears even a single cloud of lots into pieces, so two clusters
    are kept apart only when the scaled chemistry itself shows a valley between
-   them: along Fisher's discriminant axis of the two clusters, the smoothed
-   density of their lots must dip below ``segment.merge_valley`` (0.5) times the
+   them: along Fisher's discriminant axis of the two clusters (Ledoit-Wolf
+   shrunk covariance), the smoothed density of their lots must dip below ``segment.merge_valley`` (0.5) times the
    lower of the two peaks (a single unimodal cloud shows no valley along any
    straight line). A range with no real structure so comes out as one style,
    and then HDBSCAN's noise lots, which only mark the seams between the
@@ -50,6 +50,7 @@ from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
+from sklearn.covariance import ledoit_wolf
 
 from vinstrata import embed
 from vinstrata.analytes import KINDS_BY_KEY
@@ -188,7 +189,7 @@ def evaluate(space: np.ndarray, scaled: np.ndarray, min_cluster_size: int, min_s
     clusterer = fit_hdbscan(space, min_cluster_size, min_samples)
     clusters = np.asarray(clusterer.labels_, dtype=int)
     n_clusters = int(clusters.max() + 1) if clusters.size else 0
-    group_of_cluster, _ = join_split_clusters(scaled, clusters, merge_valley)
+    group_of_cluster, _ = join_split_clusters(scaled, fill_noise(space, clusters), merge_valley)
     groups = (np.where(clusters >= 0, group_of_cluster[np.maximum(clusters, 0)], -1)
               if n_clusters else clusters)
     mst = clusterer.minimum_spanning_tree_.to_numpy()
@@ -241,12 +242,13 @@ def separating_axis(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     real gap between them shows most clearly.
     """
     diff = np.median(b, axis=0) - np.median(a, axis=0)
-    if a.shape[0] + b.shape[0] < a.shape[1] + 3:
+    if a.shape[0] + b.shape[0] < 4:
         return diff
     centred = np.concatenate([a - a.mean(axis=0), b - b.mean(axis=0)])
-    within = centred.T @ centred / max(len(centred) - 2, 1)
-    shrink = 0.05 * np.trace(within) / within.shape[0] + 1e-9
-    return np.linalg.solve(within + shrink * np.eye(within.shape[0]), diff)
+    # Ledoit-Wolf shrinkage keeps the axis from fitting noise when groups are small
+    within, _ = ledoit_wolf(centred, assume_centered=True)
+    within = within + 1e-9 * np.eye(within.shape[0])
+    return np.linalg.solve(within, diff)
 
 
 def valley_ratio(a: np.ndarray, b: np.ndarray, bins: int = 120) -> float:
@@ -254,22 +256,26 @@ def valley_ratio(a: np.ndarray, b: np.ndarray, bins: int = 120) -> float:
 
     Both groups are projected on their separating axis (a's median at 0, b's
     at 1); the projected density is a histogram smoothed with a Gaussian kernel
-    of Silverman's bandwidth. A ratio near 1 means no valley: one group.
+    whose bandwidth follows Silverman's rule with the groups' pooled within-group
+    spread (the spread of the union would smooth a real valley away). A ratio
+    near 1 means no valley: one group.
     """
     axis = separating_axis(a, b)
     ta, tb = a @ axis, b @ axis
     za, zb = float(np.median(ta)), float(np.median(tb))
     if zb == za:
         return 1.0
-    t = (np.concatenate([ta, tb]) - za) / (zb - za)
+    ta, tb = (ta - za) / (zb - za), (tb - za) / (zb - za)
     lo, hi = -0.5, 1.5
+    t = np.concatenate([ta, tb])
     t = t[(t >= lo) & (t <= hi)]
     if t.size < 4:
         return 0.0
     counts, edges = np.histogram(t, bins=bins, range=(lo, hi))
     width = edges[1] - edges[0]
-    sd = max(float(np.std(t)), 1e-9)
-    bandwidth = max(1.06 * sd * t.size ** (-1 / 5), width)
+    dof = max(len(ta) + len(tb) - 2, 1)
+    sd = float(np.sqrt((((ta - ta.mean()) ** 2).sum() + ((tb - tb.mean()) ** 2).sum()) / dof))
+    bandwidth = max(1.06 * max(sd, 1e-9) * t.size ** (-1 / 5), width)
     centres = (edges[:-1] + edges[1:]) / 2
     kernel = np.exp(-0.5 * ((centres[:, None] - centres[None, :]) / bandwidth) ** 2)
     density = kernel @ counts
@@ -283,9 +289,24 @@ def valley_ratio(a: np.ndarray, b: np.ndarray, bins: int = 120) -> float:
     return float(valley / peak)
 
 
+def fill_noise(space: np.ndarray, labels: np.ndarray) -> np.ndarray:
+    """Labels with each HDBSCAN noise lot given the cluster of its nearest clustered lot."""
+    noise = labels < 0
+    if not noise.any() or noise.all():
+        return labels.copy()
+    found = embed.nearest(space[~noise], 1, query=space[noise])
+    filled = labels.copy()
+    filled[noise] = labels[~noise][found.indices[:, 0]]
+    return filled
+
+
 def join_split_clusters(scaled: np.ndarray, labels: np.ndarray, threshold: float
                         ) -> tuple[np.ndarray, list[tuple[int, int, float]]]:
     """Group clusters that show no valley between them in the scaled chemistry.
+
+    ``labels`` should give noise lots their nearest cluster (:func:`fill_noise`):
+    HDBSCAN leaves the lots in the seams between fragments out of its clusters,
+    and leaving them out of the test too would open the very gap it looks for.
 
     Returns
     -------

@@ -15,10 +15,13 @@ covariance, and a lot's score is its Mahalanobis distance to that centre:
   even where they are numerous inside one UMAP cluster;
 * the covariance is shrunk towards its diagonal scale (Ledoit and Wolf 2004)
   so that small styles in many analytes stay well conditioned;
-* the squared distance is chi-square(p) distributed for a normal style; the
-  score is its Wilson-Hilferty cube-root transform to a standard normal z
-  ((d2/p)^(1/3) - (1 - 2/(9p))) / sqrt(2/(9p)). A score of 3.5 (the default
-  cutoff for "fits no style") is a chance of about 2 in 10,000 for a typical lot.
+* the squared distance of a lot to a normal style whose centre and covariance
+  were estimated from m lots follows a scaled F(p, m - p) distribution
+  (Hotelling's T2 for a new observation); its upper tail probability is turned
+  into a standard-normal z, the outlier score. For large m this is the
+  chi-square(p) tail (computed then by the Wilson-Hilferty cube-root
+  transform). A score of 3.5 (the default cutoff for "fits no style") is a
+  chance of about 2 in 10,000 for a typical lot.
 
 :class:`StyleShape` is plain data and stored with the model; new lots are
 scored against the stored shapes, the same way as the training lots.
@@ -38,10 +41,15 @@ REWEIGHT_QUANTILE = 0.975
 
 @dataclass(frozen=True)
 class StyleShape:
-    """Robust centre and precision matrix of one style's scaled chemistry."""
+    """Robust centre and precision matrix of one style's scaled chemistry.
+
+    ``support`` is the number of lots the final estimate rests on; it sets
+    the finite-sample correction of the score.
+    """
 
     centre: np.ndarray
     precision: np.ndarray
+    support: int = 0
 
     @property
     def dims(self) -> int:
@@ -53,16 +61,18 @@ class StyleShape:
         return np.einsum("ij,jk,ik->i", diff, self.precision, diff)
 
     def score(self, x: np.ndarray) -> np.ndarray:
-        """Outlier score (Wilson-Hilferty z of the squared distance) of each row."""
-        return wilson_hilferty(self.distance2(x), self.dims)
+        """Outlier score of each row: a standard-normal z of its squared distance."""
+        return distance_score(self.distance2(x), self.dims, self.support)
 
-    def to_dict(self) -> dict[str, list]:
-        return {"centre": self.centre.tolist(), "precision": self.precision.tolist()}
+    def to_dict(self) -> dict[str, object]:
+        return {"centre": self.centre.tolist(), "precision": self.precision.tolist(),
+                "support": int(self.support)}
 
     @classmethod
-    def from_dict(cls, data: dict[str, list]) -> StyleShape:
+    def from_dict(cls, data: dict[str, object]) -> StyleShape:
         return cls(centre=np.asarray(data["centre"], dtype=float),
-                   precision=np.asarray(data["precision"], dtype=float))
+                   precision=np.asarray(data["precision"], dtype=float),
+                   support=int(data.get("support", 0)))  # type: ignore[arg-type]
 
 
 def wilson_hilferty(d2: np.ndarray, p: int) -> np.ndarray:
@@ -70,6 +80,28 @@ def wilson_hilferty(d2: np.ndarray, p: int) -> np.ndarray:
     c = 2.0 / (9.0 * p)
     return (np.cbrt(np.maximum(d2, 0.0) / p) - (1.0 - c)) / np.sqrt(c)
 
+
+def distance_score(d2: np.ndarray, p: int, support: int) -> np.ndarray:
+    """Standard-normal z of squared distances, allowing for an estimated covariance.
+
+    A lot judged against a centre and covariance estimated from m other lots
+    has d2 m (m - p) / (p (m + 1) (m - 1)) ~ F(p, m - p) (Hotelling's T2 for a new
+    observation); its upper tail probability is turned into a z. With many lots
+    per analyte this is the Wilson-Hilferty z of chi-square(p); with few it
+    stops small styles in many analytes from calling typical lots outliers.
+    """
+    d2 = np.maximum(np.asarray(d2, dtype=float), 0.0)
+    m = int(support)
+    if m <= p + 2 or m > 50_000:
+        return wilson_hilferty(d2, p)
+    f = d2 * m * (m - p) / (p * (m + 1) * (m - 1))
+    tail = stats.f.logsf(f, p, m - p)
+    return _z_of_log_tail(tail)
+
+
+def _z_of_log_tail(log_tail: np.ndarray) -> np.ndarray:
+    """z with upper tail probability exp(log_tail), accurate far into the tail."""
+    return stats.norm.isf(np.exp(np.maximum(log_tail, -700.0)))
 
 def _mean_cov(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     centre = x.mean(axis=0)
@@ -122,10 +154,12 @@ def fit_shape(x: np.ndarray) -> StyleShape:
     cov = cov * (np.median(d2) / stats.chi2.ppf(0.5 * h / n, p))
     d2 = StyleShape(centre, _precision(cov)).distance2(x)
     keep = d2 <= stats.chi2.ppf(REWEIGHT_QUANTILE, p)
+    support = h
     if keep.sum() > p:
         centre, cov = _mean_cov(x[keep])
         d2 = StyleShape(centre, _precision(cov)).distance2(x[keep])
         # the kept lots are a chi-square sample cut at its 97.5 % quantile
         target = stats.chi2.ppf(0.5 * REWEIGHT_QUANTILE, p)
         cov = cov * (np.median(d2) / target)
-    return StyleShape(centre=centre, precision=_precision(cov))
+        support = int(keep.sum())
+    return StyleShape(centre=centre, precision=_precision(cov), support=support)
