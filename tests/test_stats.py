@@ -8,6 +8,7 @@ comes from a secondary source or from memory, the comment says so.
 from __future__ import annotations
 
 import math
+from fractions import Fraction
 
 import numpy as np
 import pytest
@@ -228,15 +229,16 @@ def test_hedges_correction_matches_exact_gamma_form(n_total: int) -> None:
 
 def test_hedges_g_reproduces_lakens_2013_movie_example() -> None:
     # Lakens 2013, "Calculating and reporting effect sizes to facilitate cumulative science:
-    # a practical primer for t-tests and ANOVAs", Frontiers in Psychology 4:863, worked example
-    # of two independent groups (movie ratings, n = 10 each; Table 1 and the text on
-    # Cohen's d_s / Hedges' g_s): t(18) = 2.52, d_s = 1.13, g_s = 1.08 (two decimals).
-    # The paper's full text could not be read through the search tool; the data and these
-    # numbers are confirmed through independent test suites that quote the paper: R package
-    # dgromer/apa, tests/testthat/test-cohens-d.R and test-t-apa.R ("Example data from
-    # Lakens, D. (2013) ... doi:10.3389/fpsyg.2013.00863": d = 1.13, hedges_g = 1.08,
-    # "t(18) = 2.52"), and Perl Statistics::ANOVA::EffectSize tests ("Example from Lakens
-    # (2013) pp. 7-8", same ratings). Tolerance: the two decimals the source uses.
+    # a practical primer for t-tests and ANOVAs", Frontiers in Psychology 4:863: the worked
+    # example of two independent groups (movie ratings, n = 10 per movie) reports
+    # t(18) = 2.52, Cohen's d_s = 1.13 and Hedges' g_s = 1.08 (two decimals).
+    # The paper's full text could not be read through the search tool (only its abstract);
+    # the ratings and these numbers are confirmed through independent test suites that
+    # quote the paper: R package dgromer/apa, tests/testthat/test-cohens-d.R ("Example data
+    # from Lakens, D. (2013) ... doi:10.3389/fpsyg.2013.00863"; round(d, 2) == 1.13,
+    # hedges_g 1.08) and tests/testthat/test-t-apa.R ("t(18) = 2.52, p = .022, d = 1.13");
+    # Perl Statistics::ANOVA::EffectSize tests ("Example from Lakens (2013) pp. 7-8", the
+    # same ratings). Tolerance: the two decimals the source uses.
     movie_1 = np.array([9, 7, 8, 9, 8, 9, 9, 10, 9, 9], dtype=float)
     movie_2 = np.array([9, 6, 7, 8, 7, 9, 8, 8, 8, 7], dtype=float)
     res = stats.hedges_g(movie_1, movie_2)
@@ -314,37 +316,71 @@ def test_bh_adjust_reproduces_benjamini_hochberg_1995_example() -> None:
 
 
 def _roc_reference(top: np.ndarray, bottom: np.ndarray, higher_better: bool
-                   ) -> tuple[float, float, float]:
-    """Youden cut, J and AUC from scikit-learn (score = value or -value)."""
+                   ) -> tuple[float, float, float, list[float]]:
+    """Youden cut, J, AUC and every cut tied with the best J, from scikit-learn.
+
+    score = value (higher_better) or -value (lower_better); the cut is the roc_curve
+    threshold at the first argmax of tpr - fpr. The tied cuts are those within 1e-9 of
+    the maximum: scikit-learn's own float64 noise decides between exact ties, so the
+    order among them is checked separately, with exact arithmetic.
+    """
     values = np.concatenate([top, bottom])
     y = np.concatenate([np.ones(top.size), np.zeros(bottom.size)])
     score = values if higher_better else -values
-    fpr, tpr, thr = roc_curve(y, score)
-    k = int(np.argmax(tpr - fpr))
-    cut = thr[k] if higher_better else -thr[k]
-    return float(cut), float(tpr[k] - fpr[k]), float(roc_auc_score(y, score))
+    fpr, tpr, thr = roc_curve(y, score, drop_intermediate=False)
+    j = tpr - fpr
+    k = int(np.argmax(j))
+    sign = 1.0 if higher_better else -1.0
+    tied = [float(sign * t) for t in thr[np.abs(j - j[k]) < 1e-9]]
+    return float(sign * thr[k]), float(j[k]), float(roc_auc_score(y, score)), tied
+
+
+def _exact_youden_cut(top: np.ndarray, bottom: np.ndarray, higher_better: bool
+                      ) -> tuple[float, Fraction]:
+    """Youden 1950 in exact rational arithmetic, ties to the highest (lowest) cut."""
+    n1, n2 = top.size, bottom.size
+    best: tuple[float, Fraction] | None = None
+    values = np.unique(np.concatenate([top, bottom]))
+    for v in values[::-1] if higher_better else values:
+        if higher_better:
+            j = Fraction(int((top >= v).sum()), n1) - Fraction(int((bottom >= v).sum()), n2)
+        else:
+            j = Fraction(int((top <= v).sum()), n1) - Fraction(int((bottom <= v).sum()), n2)
+        if best is None or j > best[1]:
+            best = (float(v), j)
+    assert best is not None
+    return best
+
+
+def _unit_youden(top: np.ndarray, bottom: np.ndarray, higher_better: bool
+                 ) -> tuple[float, float]:
+    """youden_from_counts on one column of float32 ones, exactly as profile.py calls it."""
+    sorted_ = stats.Sorted.of(top, bottom)
+    cut, j = stats.youden_from_counts(
+        sorted_.counts(np.ones((top.size, 1), np.float32), "top"),
+        sorted_.counts(np.ones((bottom.size, 1), np.float32), "bottom"),
+        sorted_.values, higher_better)
+    assert cut.shape == (1,) and j.shape == (1,)
+    return float(cut[0]), float(j[0])
 
 
 @pytest.mark.parametrize("seed", range(8))
 @pytest.mark.parametrize("higher_better", [True, False])
 def test_youden_cut_and_j_match_sklearn_roc_curve(seed: int, higher_better: bool) -> None:
     # Youden 1950, Cancer 3(1): J = sensitivity + specificity - 1 = tpr - fpr, maximised over
-    # cuts; reference cut = roc_curve threshold at argmax (tpr - fpr), first one on ties.
-    # Rounded values make ties in the values and in J likely.
+    # cuts; reference: sklearn roc_curve, cut = threshold at argmax (tpr - fpr). Rounded
+    # values make ties in the values likely.
     rng = np.random.default_rng(seed)
     shift = 0.8 if higher_better else -0.8
     n_top, n_bottom = int(rng.integers(10, 60)), int(rng.integers(10, 60))
     top = np.round(rng.normal(shift, 1.0, n_top) * 2) / 2
     bottom = np.round(rng.normal(0.0, 1.0, n_bottom) * 2) / 2
-    sorted_ = stats.Sorted.of(top, bottom)
-    cut, j = stats.youden_from_counts(sorted_.counts(np.ones((n_top, 1), np.float32), "top"),
-                                      sorted_.counts(np.ones((n_bottom, 1), np.float32),
-                                                     "bottom"),
-                                      sorted_.values, higher_better)
-    ref_cut, ref_j, _ = _roc_reference(top, bottom, higher_better)
-    assert cut.shape == (1,) and j.shape == (1,)
-    assert cut[0] == ref_cut
-    assert j[0] == pytest.approx(ref_j, abs=1e-6)  # counts are float32
+    cut, j = _unit_youden(top, bottom, higher_better)
+    ref_cut, ref_j, _, tied = _roc_reference(top, bottom, higher_better)
+    assert j == pytest.approx(ref_j, abs=1e-6)  # counts are float32
+    assert cut in tied  # a cut that attains the maximal J
+    if len(tied) == 1:
+        assert cut == ref_cut
 
 
 def test_youden_per_resample_matches_sklearn_on_each_resample() -> None:
@@ -359,10 +395,59 @@ def test_youden_per_resample_matches_sklearn_on_each_resample() -> None:
                                         sorted_.counts(_weights_from_draws(draws_b, 30),
                                                        "bottom"),
                                         sorted_.values, True)
+    untied = 0
     for k in range(b):
-        ref_cut, ref_j, _ = _roc_reference(top[draws_t[k]], bottom[draws_b[k]], True)
-        assert cuts[k] == ref_cut
+        ref_cut, ref_j, _, tied = _roc_reference(top[draws_t[k]], bottom[draws_b[k]], True)
         assert js[k] == pytest.approx(ref_j, abs=1e-6)
+        assert cuts[k] in tied
+        if len(tied) == 1:
+            untied += 1
+            assert cuts[k] == ref_cut
+    assert untied >= b // 2  # the strict comparison was really exercised
+
+
+@pytest.mark.parametrize("higher_better", [True, False])
+def test_youden_tie_goes_to_the_cut_sklearn_lists_first(higher_better: bool) -> None:
+    # stats.youden_from_counts documents: "Ties in J go to the cut scikit-learn's roc_curve
+    # lists first (the highest cut, or the lowest for lower_better)". Hand-checkable case
+    # (Youden 1950 by hand): top = {0, 2, 3}, bottom = {0, 0, 1, 2, 2, 3}; cut 3 gives
+    # J = 1/3 - 1/6 = 1/6, cut 2 gives J = 2/3 - 3/6 = 1/6: an exact tie, so the cut is 3
+    # (and -3 on the mirrored data for lower_better). sklearn roc_curve also lists 3 first.
+    sign = 1.0 if higher_better else -1.0
+    top = sign * np.array([0.0, 2.0, 3.0])
+    bottom = sign * np.array([0.0, 0.0, 1.0, 2.0, 2.0, 3.0])
+    ref_cut, ref_j, _, _ = _roc_reference(top, bottom, higher_better)
+    assert ref_cut == sign * 3.0 and ref_j == pytest.approx(1 / 6)
+    cut, j = _unit_youden(top, bottom, higher_better)
+    assert j == pytest.approx(1 / 6, abs=1e-6)
+    assert cut == sign * 3.0
+
+
+def test_youden_ties_follow_the_documented_rule_on_point_and_bootstrap_cuts() -> None:
+    # The same documented tie rule, checked in exact rational arithmetic (Youden 1950) on
+    # rounded data where ties in J are common, for the observed cut and for resamples.
+    rng = np.random.default_rng(2024)
+    wrong = []
+    for case in range(60):
+        higher = case % 2 == 0
+        n_top, n_bottom = int(rng.integers(10, 40)), int(rng.integers(10, 40))
+        top = np.round(rng.normal(0.8 if higher else -0.8, 1.0, n_top) * 2) / 2
+        bottom = np.round(rng.normal(0.0, 1.0, n_bottom) * 2) / 2
+        cut, _ = _unit_youden(top, bottom, higher)
+        if cut != _exact_youden_cut(top, bottom, higher)[0]:
+            wrong.append(("observed", case))
+        w_top, w_bottom = stats.resample_weights(rng, n_top, 10), stats.resample_weights(
+            rng, n_bottom, 10)
+        sorted_ = stats.Sorted.of(top, bottom)
+        cuts, _ = stats.youden_from_counts(sorted_.counts(w_top, "top"),
+                                           sorted_.counts(w_bottom, "bottom"),
+                                           sorted_.values, higher)
+        for k in range(10):
+            exact = _exact_youden_cut(np.repeat(top, w_top[:, k].astype(int)),
+                                      np.repeat(bottom, w_bottom[:, k].astype(int)), higher)
+            if cuts[k] != exact[0]:
+                wrong.append(("resample", case, k))
+    assert wrong == []
 
 
 @pytest.mark.parametrize("seed", range(5))
@@ -374,8 +459,8 @@ def test_auc_from_delta_matches_sklearn(seed: int) -> None:
     top, bottom = _tied_sample(rng, 21 + seed, 0.5), _tied_sample(rng, 34)
     delta = stats.cliffs_delta(top, bottom)
     auc = (delta + 1) / 2
-    _, _, ref_hi = _roc_reference(top, bottom, True)
-    _, _, ref_lo = _roc_reference(top, bottom, False)
+    ref_hi = _roc_reference(top, bottom, True)[2]
+    ref_lo = _roc_reference(top, bottom, False)[2]
     assert auc == pytest.approx(ref_hi, abs=1e-12)
     assert 1 - auc == pytest.approx(ref_lo, abs=1e-12)
 

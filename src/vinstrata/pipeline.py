@@ -112,7 +112,7 @@ def write_profile(profiles: Profiles, out: str | Path) -> list[Path]:
 def load_new(path: str | Path, model: StyleModel, config: Config,
              sheet: str | None = None) -> LotTable:
     """Read new lots through the training front door, refusing a file that does not fit."""
-    from vinstrata.place import check_columns
+    from vinstrata.place import check_columns, check_units
 
     if sheet is not None:
         import dataclasses
@@ -121,7 +121,9 @@ def load_new(path: str | Path, model: StyleModel, config: Config,
                                                                          sheet=sheet))
     raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter)
     check_columns(raw, model, config)
-    return validate(raw, config, require_grade=False)
+    table = validate(raw, config, require_grade=False)
+    check_units(table, model)
+    return table
 
 
 def place(table: LotTable, model: StyleModel, profiles: Profiles | None,

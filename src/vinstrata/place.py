@@ -31,6 +31,7 @@ of 20 or more away from the model's on most lots (another unit).
 from __future__ import annotations
 
 import dataclasses
+import textwrap
 import warnings
 from dataclasses import dataclass
 
@@ -483,9 +484,10 @@ def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
                  f"{len(rejected)} rejected; {n_label} need a sulfite statement on the label.")
     for row in rejected.head(10).itertuples():
         lines.append(f"  rejected: {row.lot_id or '(no id)'}: {row.status}")
-    lines.append(f"band: the band most of its neighbours got, and the share of them in the top "
-                 f"band ({INDICATION}).")
-    lines.append(CAUTION)
+    notes = [f"band: the band most of its neighbours got, and the share of them in the top "
+             f"band ({INDICATION}).", CAUTION]
+    for note in notes:
+        lines += textwrap.wrap(note, width)
     return "\n".join(lines)
 
 

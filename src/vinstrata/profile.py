@@ -7,8 +7,10 @@ Per style, and for the pooled range (style ``all``), per analyte:
 * Cliff's delta of the top band against the bottom band with a seeded
   percentile-bootstrap CI (``profile.bootstrap`` resamples, default 2000);
   Hedges' g with its CI; the two-sided Mann-Whitney p-value; the
-  Benjamini-Hochberg q over every test of the run (every style x analyte and
-  the pooled rows); Spearman's rho of the analyte with the grade over all the
+  Benjamini-Hochberg q over every style x analyte test of the run (the pooled
+  rows form a family of their own: their differences are mostly between styles,
+  and counting them with the within-style tests would loosen the correction of
+  the latter); Spearman's rho of the analyte with the grade over all the
   style's lots;
 * an analyte is a *driver* of a style when q < ``profile.fdr`` and the delta CI
   excludes 0; drivers are ranked by |delta|;
@@ -36,6 +38,7 @@ from vinstrata.bands import assign_bands
 from vinstrata.cells import MISSING
 from vinstrata.config import Config
 from vinstrata.errors import InputError
+from vinstrata.lots import AnalyteSpec
 from vinstrata.model import UNASSIGNED, StyleModel
 from vinstrata.progress import Reporter
 
@@ -75,21 +78,20 @@ class Group:
 # --------------------------------------------------------------------------- groups
 
 
-def style_groups(model: StyleModel, config: Config) -> list[Group]:
+def style_groups(lots: pd.DataFrame, styles: pd.DataFrame, config: Config) -> list[Group]:
     """The styles' lots (plus, if configured, their unassigned lots) and the pooled range."""
-    lots = model.lots
     grades = lots["grade"].to_numpy(dtype=float)
     if not np.isfinite(grades).any():
-        raise InputError(f"{model.source.name}: the model's lots have no grades; profiles need "
-                         "the grade column ([columns] grade)")
+        raise InputError("the lots have no grades; profiles need the grade column "
+                         "([columns] grade)")
     style = lots["style"].to_numpy(dtype=object)
     home = style.copy()
     if config.profile.include_unassigned:
         home = np.where(style == UNASSIGNED, lots["nearest_style"].to_numpy(dtype=object), style)
     bands_by_style = assign_bands(grades, home, config.bands)
-    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
+    trusted = dict(zip(styles["style"], styles["trusted"]))
     groups = []
-    for sid in model.style_ids:
+    for sid in styles["style"]:
         rows = np.flatnonzero(home == sid)
         extra = int((style[rows] == UNASSIGNED).sum())
         note = f"includes {extra} unassigned lots under their nearest style" if extra else ""
@@ -103,10 +105,10 @@ def style_groups(model: StyleModel, config: Config) -> list[Group]:
 # --------------------------------------------------------------------------- one group
 
 
-def _observed(model: StyleModel, analyte: str) -> np.ndarray:
-    values = model.values[analyte].to_numpy(dtype=float).copy()
-    values[(model.flags[analyte] == MISSING).to_numpy()] = np.nan
-    return values
+def _observed(values: pd.DataFrame, flags: pd.DataFrame, analyte: str) -> np.ndarray:
+    out = values[analyte].to_numpy(dtype=float).copy()
+    out[(flags[analyte] == MISSING).to_numpy()] = np.nan
+    return out
 
 
 def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
@@ -319,12 +321,37 @@ def profile_styles(model: StyleModel, config: Config | None = None,
     -------
     Profiles
     """
-    config = config or model.config
+    return profile_table(model.values, model.flags, model.lots, model.styles, model.specs,
+                         config or model.config, reporter)
+
+
+def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
+                  styles: pd.DataFrame, specs: tuple[AnalyteSpec, ...], config: Config,
+                  reporter: Reporter | None = None) -> Profiles:
+    """Profile lots that already carry a style, from plain frames.
+
+    Parameters
+    ----------
+    values, flags : DataFrame
+        Canonical values and cell states, one column per analyte, one row per lot.
+    lots : DataFrame
+        ``grade``, ``style`` (a style id or "unassigned") and ``nearest_style``.
+    styles : DataFrame
+        ``style`` (ids, in report order) and ``trusted``.
+    specs : tuple of AnalyteSpec
+        The analytes to profile (labels for the sentences).
+    config : Config
+    reporter : Reporter, optional
+
+    Returns
+    -------
+    Profiles
+    """
     rep = reporter or Reporter()
-    groups = style_groups(model, config)
-    grades = model.lots["grade"].to_numpy(dtype=float)
-    analytes = [s.name for s in model.specs]
-    observed = {a: _observed(model, a) for a in analytes}
+    groups = style_groups(lots, styles, config)
+    grades = lots["grade"].to_numpy(dtype=float)
+    analytes = [s.name for s in specs]
+    observed = {a: _observed(values, flags, a) for a in analytes}
     rng = np.random.default_rng(config.seed)
     rows, kept = [], []
     for i, group in enumerate(groups):
@@ -333,12 +360,18 @@ def profile_styles(model: StyleModel, config: Config | None = None,
         kept.append(weights)
         rep.bar(i + 1, len(groups), "  bootstrap")
     drivers = pd.DataFrame(rows)
-    drivers["q_value"] = stats.bh_adjust(drivers["p_value"].to_numpy())
+    # one Benjamini-Hochberg family for every style x analyte test, another for the pooled
+    # rows: pooled differences are mostly between styles and would loosen the correction
+    pooled_rows = (drivers["style"] == POOLED).to_numpy()
+    q = np.full(len(drivers), np.nan)
+    for family in (~pooled_rows, pooled_rows):
+        q[family] = stats.bh_adjust(drivers.loc[family, "p_value"].to_numpy())
+    drivers["q_value"] = q
     ci_excludes = (drivers["ci_low"] > 0) | (drivers["ci_high"] < 0)
     drivers["is_driver"] = ((drivers["q_value"] < config.profile.fdr) & ci_excludes).fillna(False)
     drivers["is_driver"] = drivers["is_driver"].astype(bool)
     drivers["rank"] = np.nan
-    for style, part in drivers[drivers["is_driver"]].groupby("style", sort=False):
+    for _, part in drivers[drivers["is_driver"]].groupby("style", sort=False):
         order = part["cliffs_delta"].abs().sort_values(ascending=False, kind="stable").index
         drivers.loc[order, "rank"] = np.arange(1, len(order) + 1)
     drivers = drivers[list(DRIVER_COLUMNS) + list(EXTRA_DRIVER_COLUMNS)]
@@ -350,10 +383,10 @@ def profile_styles(model: StyleModel, config: Config | None = None,
         mine = drivers[drivers["style"] == group.style]
         threshold_rows += _thresholds(group, mine, observed, weights, config)
     thresholds = pd.DataFrame(threshold_rows, columns=list(THRESHOLD_COLUMNS))
-    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
+    trusted = dict(zip(styles["style"], styles["trusted"]))
     thresholds["trusted"] = thresholds["style"].map(trusted).astype(bool)
 
-    labels = {s.name: s.label for s in model.specs}
+    labels = {s.name: s.label for s in specs}
     return Profiles(
         drivers=drivers, thresholds=thresholds, contrasts=contrasts(drivers, labels),
         band_counts=_band_counts(groups, config), band_stats=_band_stats(groups, observed, config),

@@ -65,8 +65,10 @@ from vinstrata.transform import ChemistryScaler, fit_scaler, impute
 from vinstrata.typicality import StyleShape, fit_shape
 
 TIE = 0.02  # relative-validity difference treated as a tie in the sweep
+DIFFUSE = 1.1  # a group spread wider than the range itself (median IQR ratio) is no style
 MIN_LOTS = 10  # fewer used lots than this cannot be segmented
 NAME_Z = 0.5  # |robust z| of a style median worth naming
+NAME_Z_WEAK = 0.25  # named as "moderately" when a style has fewer than two strong terms
 NAME_TERMS = 3
 
 
@@ -119,11 +121,42 @@ class Clustering:
 
     @property
     def groups(self) -> np.ndarray:
-        """Joined group of each lot, -1 for HDBSCAN noise."""
-        if not self.group_of_cluster.size:
-            return np.full(len(self.clusters), -1)
-        return np.where(self.clusters >= 0,
-                        self.group_of_cluster[np.maximum(self.clusters, 0)], -1)
+        """Joined group of each lot, -1 for HDBSCAN noise and for diffuse groups."""
+        return lot_groups(self.clusters, self.group_of_cluster)
+
+
+def lot_groups(clusters: np.ndarray, group_of_cluster: np.ndarray) -> np.ndarray:
+    """Group of each lot from its cluster (-1 stays -1, so do clusters of group -1)."""
+    if not group_of_cluster.size:
+        return np.full(len(clusters), -1)
+    return np.where(clusters >= 0, group_of_cluster[np.maximum(clusters, 0)], -1)
+
+
+def spread(scaled: np.ndarray) -> float:
+    """Median over analytes of the interquartile range, in units of the range's own IQR."""
+    q25, q75 = np.quantile(scaled, [0.25, 0.75], axis=0)
+    return float(np.median(q75 - q25))
+
+
+def drop_diffuse(scaled: np.ndarray, clusters: np.ndarray, group_of_cluster: np.ndarray
+                 ) -> np.ndarray:
+    """Dissolve groups spread wider than the range itself; renumber the others.
+
+    A style is a part of the range, so its lots cannot spread wider than the
+    whole range does. Lots of random chemistry scattered over the range, which
+    UMAP gathers into clusters of their own, do: their median IQR across
+    analytes exceeds the range's (the scaled chemistry has IQR 1 by
+    construction) by more than 10 %. Their clusters get group -1.
+    """
+    n_groups = int(group_of_cluster.max() + 1) if group_of_cluster.size else 0
+    if n_groups < 2:
+        return group_of_cluster
+    groups = lot_groups(clusters, group_of_cluster)
+    keep = [g for g in range(n_groups) if spread(scaled[groups == g]) <= DIFFUSE]
+    if not keep:
+        return group_of_cluster
+    renumber = {g: k for k, g in enumerate(keep)}
+    return np.array([renumber.get(int(g), -1) for g in group_of_cluster], dtype=int)
 
 
 def default_min_samples(min_cluster_size: int) -> int:
@@ -190,8 +223,8 @@ def evaluate(space: np.ndarray, scaled: np.ndarray, min_cluster_size: int, min_s
     clusters = np.asarray(clusterer.labels_, dtype=int)
     n_clusters = int(clusters.max() + 1) if clusters.size else 0
     group_of_cluster, _ = join_split_clusters(scaled, fill_noise(space, clusters), merge_valley)
-    groups = (np.where(clusters >= 0, group_of_cluster[np.maximum(clusters, 0)], -1)
-              if n_clusters else clusters)
+    group_of_cluster = drop_diffuse(scaled, clusters, group_of_cluster)
+    groups = lot_groups(clusters, group_of_cluster) if n_clusters else clusters
     mst = clusterer.minimum_spanning_tree_.to_numpy()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
@@ -341,12 +374,14 @@ def join_split_clusters(scaled: np.ndarray, labels: np.ndarray, threshold: float
 
 
 def style_phrase(kind_key: str, label: str, z: float) -> str:
-    """"high alcohol", "low pH", "deep colour": a word for the side and the analyte."""
+    """"high alcohol", "low pH", "deep colour", "moderately high alcohol"."""
     kind = KINDS_BY_KEY.get(kind_key)
     if kind is not None:
         word = kind.high_word if z > 0 else kind.low_word
     else:
         word = "high" if z > 0 else "low"
+    if abs(z) < NAME_Z:
+        word = f"moderately {word}"
     return f"{word} {label}"
 
 
@@ -364,13 +399,17 @@ def name_styles(medians_z: pd.DataFrame, labels: dict[str, tuple[str, str]]) -> 
     -------
     dict
         Style id -> name, unique within the run. Up to three analytes with
-        |z| >= 0.5 are named, more when two styles would share a name; a style
-        with none is "typical of the range".
+        |z| >= 0.5 are named, strongest first; a style with fewer than two
+        fills up with analytes of |z| >= 0.25 ("moderately high ..."); more terms
+        are added where two styles would share a name; a style with none is
+        "typical of the range".
     """
     ranked = {}
     for style, row in medians_z.iterrows():
         order = row.abs().sort_values(ascending=False, kind="stable")
-        ranked[style] = [a for a in order.index if abs(row[a]) >= NAME_Z]
+        strong = [a for a in order.index if abs(row[a]) >= NAME_Z]
+        weak = [a for a in order.index if NAME_Z_WEAK <= abs(row[a]) < NAME_Z]
+        ranked[style] = strong + weak[: max(0, 2 - len(strong))]
     names: dict[str, str] = {}
     for terms in range(NAME_TERMS, NAME_TERMS + 4):
         names = {}
@@ -601,7 +640,8 @@ def _group_memberships(clusterer: object, group_of_cluster: np.ndarray, n_groups
     vectors = vectors.reshape(n, -1)
     out = np.zeros((n, n_groups))
     for c, g in enumerate(group_of_cluster):
-        out[:, g] += vectors[:, c]
+        if g >= 0:
+            out[:, g] += vectors[:, c]
     return out
 
 

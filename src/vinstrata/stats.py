@@ -172,16 +172,21 @@ def youden_from_counts(top: np.ndarray, bottom: np.ndarray, values: np.ndarray,
     its value <= cut. Ties in J go to the cut scikit-learn's ``roc_curve``
     lists first (the highest cut, or the lowest for lower_better).
     """
+    # weights are whole multiplicities, so J scaled by n1 n2 is an exact integer in
+    # float64: ties are then true ties, decided by the rule, not by rounding
+    top = top.astype(np.float64, copy=False)
+    bottom = bottom.astype(np.float64, copy=False)
     n1 = top.sum(axis=0, keepdims=True)
     n2 = bottom.sum(axis=0, keepdims=True)
+    if higher_better:
+        score = (np.cumsum(top[::-1], axis=0)[::-1] * n2
+                 - np.cumsum(bottom[::-1], axis=0)[::-1] * n1)
+        best = score.shape[0] - 1 - np.argmax(score[::-1], axis=0)
+    else:
+        score = np.cumsum(top, axis=0) * n2 - np.cumsum(bottom, axis=0) * n1
+        best = np.argmax(score, axis=0)
     with np.errstate(invalid="ignore", divide="ignore"):
-        if higher_better:
-            j = (np.cumsum(top[::-1], axis=0)[::-1] / n1
-                 - np.cumsum(bottom[::-1], axis=0)[::-1] / n2)
-            best = j.shape[0] - 1 - np.argmax(j[::-1], axis=0)
-        else:
-            j = np.cumsum(top, axis=0) / n1 - np.cumsum(bottom, axis=0) / n2
-            best = np.argmax(j, axis=0)
+        j = score / (n1 * n2)
     return values[best], j[best, np.arange(j.shape[1])]
 
 

@@ -1,0 +1,169 @@
+"""Within-style drivers on planted truth: found, signed, contrasted, honest about small bands."""
+
+from __future__ import annotations
+
+import dataclasses
+
+import numpy as np
+import pandas as pd
+import pytest
+from conftest import DEMO
+
+from vinstrata.config import packaged_config
+from vinstrata.demo import generate_demo
+from vinstrata.ingest import RawTable, Source
+from vinstrata.profile import DRIVER_COLUMNS, POOLED, THRESHOLD_COLUMNS, profile_table
+from vinstrata.validate import validate
+
+
+def _planted_to_found(model) -> dict[str, str]:
+    """Each planted style's found style: where most of its lots went."""
+    truth = pd.read_csv(DEMO / "truth_lots.csv").set_index("lot")["style"]
+    lots = model.lots.assign(truth=truth.reindex(model.lots["lot_id"]).to_numpy())
+    lots = lots[lots["style"] != "unassigned"]
+    return lots.groupby("truth")["style"].agg(lambda s: s.value_counts().index[0]).to_dict()
+
+
+def test_every_planted_driver_is_found_with_its_sign(demo_model, demo_profiles):
+    truth = pd.read_csv(DEMO / "truth_drivers.csv")
+    found = _planted_to_found(demo_model)
+    trusted = set(demo_model.styles.loc[demo_model.styles["trusted"], "style"])
+    drivers = demo_profiles.drivers.set_index(["style", "analyte"])
+    checked = 0
+    for row in truth[truth["role"] == "driver"].itertuples():
+        style = found[row.style]
+        if style not in trusted:
+            continue  # an untrusted style promises nothing
+        result = drivers.loc[(style, row.analyte)]
+        assert result["is_driver"], (row.style, row.analyte)
+        assert np.sign(result["cliffs_delta"]) == row.sign, (row.style, row.analyte)
+        checked += 1
+    assert checked >= 15
+
+
+def test_planted_reversal_is_flagged(demo_model, demo_profiles):
+    found = _planted_to_found(demo_model)
+    contrasts = demo_profiles.contrasts
+    malic = contrasts[(contrasts["analyte"] == "malic_acid") & (contrasts["kind"] == "reversal")]
+    assert len(malic) == 1
+    styles = malic["styles"].iloc[0].split(";")
+    assert found["crisp_white"] in styles and found["structured_red"] in styles
+    sentence = malic["sentence"].iloc[0]
+    assert "the opposite" in sentence and "pooled" in sentence
+
+
+def test_between_style_difference_is_not_sold_as_a_driver(demo_profiles):
+    # phenolics differ between styles whose grades differ, with no effect inside any style
+    drivers = demo_profiles.drivers.set_index(["style", "analyte"])
+    assert drivers.loc[(POOLED, "total_phenolics"), "is_driver"]
+    contrasts = demo_profiles.contrasts
+    kinds = set(contrasts.loc[contrasts["analyte"] == "total_phenolics", "kind"])
+    assert "pooled_misleading" in kinds
+
+
+def test_no_effect_analytes_stay_within_the_false_discovery_rate():
+    # planted truth over several seeds: the share of false drivers among the drivers found
+    # stays near the FDR level (0.05); a bound of 0.09 over ten seeds leaves room for chance
+    config = packaged_config("demo")
+    config = dataclasses.replace(config, profile=dataclasses.replace(config.profile,
+                                                                     bootstrap=300))
+    shares = []
+    for seed in range(1, 11):
+        demo = generate_demo(3000, seed=seed, bad_rows=0, n_new=0)
+        raw = RawTable(cells=demo.lots.astype(str), rows=list(range(2, len(demo.lots) + 2)),
+                       source=Source("demo", "demo", "", "text"))
+        table = validate(raw, config)
+        used = table.used
+        truth = demo.truth_lots.set_index("lot")["style"].reindex(
+            table.ids.loc[used, "lot_id"]).to_numpy()
+        lots = pd.DataFrame({"grade": table.ids.loc[used, "grade"].to_numpy(), "style": truth,
+                             "nearest_style": truth})
+        styles = pd.DataFrame({"style": sorted(set(truth)), "trusted": True})
+        profiles = profile_table(table.values[used].reset_index(drop=True),
+                                 table.flags[used].reset_index(drop=True), lots, styles,
+                                 table.specs, config)
+        rows = profiles.drivers[profiles.drivers["style"] != POOLED].merge(
+            demo.truth_drivers, on=["style", "analyte"])
+        flagged = rows[rows["is_driver"] & (rows["role"] != "indirect")]
+        shares.append((flagged["role"] == "no_effect").sum() / max(len(flagged), 1))
+    assert np.mean(shares) <= 0.09
+
+
+def test_small_bands_get_insufficient_never_a_number(demo_model, demo_profiles):
+    drivers = demo_profiles.drivers
+    untrusted = demo_model.styles.loc[~demo_model.styles["trusted"], "style"]
+    rows = drivers[drivers["style"].isin(untrusted)]
+    thin = rows[(rows["n_top"] < 10) | (rows["n_bottom"] < 10)]
+    assert len(thin)
+    assert thin["cliffs_delta"].isna().all() and thin["ci_low"].isna().all()
+    assert thin["hedges_g"].isna().all() and thin["p_value"].isna().all()
+    assert thin["note"].str.startswith("insufficient").all()
+    assert not thin["is_driver"].any()
+    assert (~rows["trusted"]).all()
+
+
+def test_every_effect_size_has_its_interval(demo_profiles):
+    drivers = demo_profiles.drivers
+    measured = drivers[drivers["cliffs_delta"].notna()]
+    assert (measured["ci_low"] <= measured["cliffs_delta"] + 1e-12).all()
+    assert (measured["cliffs_delta"] <= measured["ci_high"] + 1e-12).all()
+    assert measured[["hedges_g_ci_low", "hedges_g_ci_high"]].notna().all().all()
+    assert measured["q_value"].between(0, 1).all()
+
+
+def test_drivers_are_ranked_by_absolute_delta(demo_profiles):
+    drivers = demo_profiles.drivers
+    for _, part in drivers[drivers["is_driver"]].groupby("style"):
+        ordered = part.sort_values("rank")
+        assert list(ordered["rank"]) == list(range(1, len(part) + 1))
+        assert ordered["cliffs_delta"].abs().is_monotonic_decreasing
+
+
+def test_thresholds_give_a_cut_for_each_driver_and_a_window_for_each_analyte(demo_profiles):
+    thresholds = demo_profiles.thresholds
+    drivers = demo_profiles.drivers
+    assert list(thresholds.columns[:10]) == list(THRESHOLD_COLUMNS)
+    merged = thresholds.merge(drivers[["style", "analyte", "is_driver", "cliffs_delta", "n_top"]],
+                              on=["style", "analyte"])
+    cut = merged[merged["is_driver"]]
+    assert cut["cut"].notna().all() and cut["youden_j"].between(0, 1).all()
+    assert ((cut["cut_ci_low"] <= cut["cut"]) & (cut["cut"] <= cut["cut_ci_high"])).all()
+    higher = cut["cliffs_delta"] > 0
+    assert (cut.loc[higher, "direction"] == "higher_better").all()
+    assert (cut.loc[~higher, "direction"] == "lower_better").all()
+    assert (cut["auc"] >= 0.5).all()
+    windowed = merged[merged["n_top"] >= 10]
+    assert (windowed["target_low"] <= windowed["target_high"]).all()
+    assert merged.loc[~merged["is_driver"], "cut"].isna().all()
+
+
+def test_profile_cli_writes_the_contract_files(demo_model_dir, tmp_path, run_cli):
+    result = run_cli("-q", "profile", "--model", demo_model_dir, "--out", tmp_path / "prof")
+    assert result.code == 0, result
+    drivers = pd.read_csv(tmp_path / "prof" / "drivers.csv")
+    assert list(drivers.columns[:17]) == list(DRIVER_COLUMNS)
+    assert set(drivers["style"]) >= {"S1", POOLED}
+    contrasts = pd.read_csv(tmp_path / "prof" / "contrasts.csv")
+    assert list(contrasts.columns) == ["analyte", "kind", "styles", "sentence"]
+    assert set(contrasts["kind"]) <= {"reversal", "style_specific", "pooled_misleading"}
+    again = run_cli("-q", "profile", "--model", demo_model_dir, "--out", tmp_path / "again")
+    assert again.code == 0
+    for name in ("drivers.csv", "thresholds.csv", "contrasts.csv"):
+        assert (tmp_path / "prof" / name).read_bytes() == (tmp_path / "again" / name).read_bytes()
+
+
+@pytest.mark.parametrize("mode", ["style_quantile"])
+def test_per_style_quantile_bands(demo_model, mode):
+    from vinstrata.profile import profile_styles
+
+    config = dataclasses.replace(demo_model.config, bands=dataclasses.replace(
+        demo_model.config.bands, mode=mode, quantiles=(0.2, 0.8)))
+    profiles = profile_styles(demo_model, config)
+    counts = profiles.band_counts.set_index("style")
+    for sid in demo_model.style_ids:
+        row = counts.loc[sid]
+        if row["n_graded"] < 100:
+            continue  # grades are written to 0.1: ties move small styles' shares a lot
+        # bottom 20 % and top 20 % of each style's own grades (ties may round the shares)
+        assert row["bottom"] == pytest.approx(0.2 * row["n_graded"], abs=0.05 * row["n_graded"])
+        assert row["top"] == pytest.approx(0.2 * row["n_graded"], abs=0.05 * row["n_graded"])
