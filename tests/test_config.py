@@ -131,7 +131,7 @@ BAD = {
     "include_unassigned": (MINIMAL + '[profile]\ninclude_unassigned = "yes"\n',
                            "profile.include_unassigned", "true or false"),
     "seed_text": ('seed = "abc"\n' + MINIMAL, "seed", "an integer"),
-    "bounds_pair": (MINIMAL + "[bounds]\nproline = [5000]\n", "bounds", "[low, high]"),
+    "bounds_pair": (MINIMAL + "[bounds]\nproline = [5000]\n", "bounds.proline", "[low, high]"),
     "ingest_not_table": (MINIMAL.replace("[columns]", 'ingest = 3\n[columns]'), "ingest",
                          "a table"),
     "market_unknown_key": (MINIMAL + "[limits.eu]\nva_max = 1.2\n", "limits.eu.va_max",
@@ -193,7 +193,7 @@ def test_wrong_type_inside_units_names_the_analyte(tmp_path):
     with pytest.raises(InputError) as err:
         load_config(path)
     message = str(err.value)
-    assert "bad.toml" in message and "units" in message and "'alcohol'" in message
+    assert "bad.toml" in message and "'units.alcohol'" in message
     assert "a string" in message
 
 

@@ -98,7 +98,7 @@ def assert_clean(result, out: Path, lots: list[str] | None = None) -> list[list[
 def write_records(path: Path, header: list[str], records: list[list[str]], delimiter: str = ",",
                   encoding: str = "utf-8") -> None:
     buffer = io.StringIO()
-    writer = csv.writer(buffer, delimiter=delimiter, lineterminator="\n")
+    writer = csv.writer(buffer, delimiter=delimiter)  # "\r\n" ends, as Excel writes
     writer.writerow(header)
     writer.writerows(records)
     path.write_bytes(buffer.getvalue().encode(encoding))
@@ -272,6 +272,8 @@ def good_files(tmp_path_factory) -> Path:
 @FUZZ
 @given(suffix=st.sampled_from([".xlsx", ".parquet"]), cut=st.floats(0.0, 1.0),
        flips=st.lists(st.tuples(st.floats(0.0, 1.0), st.integers(0, 255)), max_size=12))
+@example(suffix=".xlsx", cut=1.0, flips=[(0.5, 0)])  # one zeroed byte inside a sheet stream
+@example(suffix=".parquet", cut=0.3, flips=[])  # a truncated download
 def test_damaged_workbooks_and_parquet_files_are_refused_cleanly(run_cli, config_path,
                                                                  workdir, good_files, suffix,
                                                                  cut, flips):

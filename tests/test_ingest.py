@@ -321,15 +321,15 @@ def _censored_table(tmp_path, cells: list[str], censored: str = "half_limit", te
 
 
 def test_below_limit_takes_half_the_limit_and_is_flagged(tmp_path):
-    table = _censored_table(tmp_path, ["<0.4", "< 0.4", "<=0.4", "≤0.4", "25"])
-    np.testing.assert_allclose(table.values["free_so2"], [0.2, 0.2, 0.2, 0.2, 25.0])
+    table = _censored_table(tmp_path, ["<0.1", "< 0.1", "<=0.1", "≤0.1", "25"])
+    np.testing.assert_allclose(table.values["free_so2"], [0.05, 0.05, 0.05, 0.05, 25.0])
     assert table.flags["free_so2"].tolist() == ["censored_below"] * 4 + ["ok"]
     assert (table.ids["status"] == "used").all()
 
 
 def test_not_detected_takes_half_the_lowest_written_limit(tmp_path):
-    table = _censored_table(tmp_path, ["<2", "<1", "ND", "n.d.", "25"])
-    np.testing.assert_allclose(table.values["free_so2"], [1.0, 0.5, 0.5, 0.5, 25.0])
+    table = _censored_table(tmp_path, ["<0.2", "<0.1", "ND", "n.d.", "25"])
+    np.testing.assert_allclose(table.values["free_so2"], [0.1, 0.05, 0.05, 0.05, 25.0])
     assert table.flags["free_so2"].tolist() == ["censored_below"] * 4 + ["ok"]
     assert (table.ids["status"] == "used").all()
 

@@ -166,7 +166,7 @@ class Config:
     place: Place = field(default_factory=Place)
     limits: Limits = field(default_factory=Limits)
     report: Report = field(default_factory=Report)
-    seed: int = 0
+    seed: int = 20261201
     source: str = "<defaults>"
 
     def to_dict(self) -> dict[str, Any]:
@@ -220,11 +220,15 @@ def _boolean(value: Any) -> bool:
     return value
 
 
+def _num(value: float) -> str:
+    return str(int(value)) if float(value).is_integer() else f"{value:g}"
+
+
 def _positive(check: Check, minimum: float = 1) -> Check:
     def run(value: Any) -> Any:
         out = check(value)
         if out < minimum:
-            raise _Wrong(f"a value of at least {minimum:g}")
+            raise _Wrong(f"a value of at least {_num(minimum)}")
         return out
 
     return run
@@ -234,7 +238,7 @@ def _between(check: Check, low: float, high: float) -> Check:
     def run(value: Any) -> Any:
         out = check(value)
         if not low <= out <= high:
-            raise _Wrong(f"a value between {low:g} and {high:g}")
+            raise _Wrong(f"a value between {_num(low)} and {_num(high)}")
         return out
 
     return run
@@ -470,7 +474,7 @@ def _cross_checks(source: str, config: Config) -> None:
     if len(set(bands.labels)) != len(bands.labels):
         raise _fail(source, "bands.labels", "distinct names", list(bands.labels))
     q = bands.quantiles
-    if list(q) != sorted(q) or len(q) != len(bands.cuts):
+    if bands.mode == "style_quantile" and (list(q) != sorted(q) or len(q) != len(bands.cuts)):
         raise _fail(source, "bands.quantiles",
                     f"{len(bands.cuts)} ascending quantiles (one per cut)", list(q))
     tq = config.profile.target_quantiles
@@ -516,10 +520,13 @@ def parse_config(raw: Mapping[str, Any], source: str = "<config>") -> Config:
         elif key in _TOP_TABLES:
             if not isinstance(value, dict):
                 raise _fail(source, key, "a table", value)
-            try:
-                values[key] = _table_of(_TOP_TABLES[key], "values")(value)
-            except _Wrong as wrong:
-                raise _fail(source, key, str(wrong), value) from None
+            table = {}
+            for name, item in value.items():
+                try:
+                    table[str(name)] = _TOP_TABLES[key](item)
+                except _Wrong as wrong:
+                    raise _fail(source, f"{key}.{name}", str(wrong), item) from None
+            values[key] = table
         elif key == "seed":
             try:
                 values["seed"] = _between(_integer, 0, 2**32 - 1)(value)

@@ -11,7 +11,10 @@ once, the same way for every format, in :mod:`vinstrata.validate`.
 * Excel: the first sheet, or the one named by ``sheet``.
 * Parquet: read with pyarrow.
 
-Row numbers count the header as row 1, as a spreadsheet shows them.
+Row numbers are the file's own line (or sheet row) numbers, the header being row 1
+when nothing stands above it, as a spreadsheet shows them. A trailing delimiter
+at the end of the lines is tolerated; a row with more filled fields than the
+header is refused, naming the row.
 """
 
 from __future__ import annotations
@@ -20,7 +23,6 @@ import csv
 import hashlib
 import io
 import math
-import re
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -112,13 +114,13 @@ def read_table(path: str | Path, sheet: str = "", delimiter: str = "auto") -> Ra
     digest = sha256_of(path)
     suffix = path.suffix.lower()
     if head.startswith(b"PAR1") or suffix == ".parquet":
-        frame, info = _read_parquet(path), {"format": "parquet"}
+        frame, lines, info = _read_parquet(path)
     elif head.startswith(b"PK\x03\x04") or suffix in (".xlsx", ".xlsm"):
-        frame, info = _read_excel(path, sheet)
+        frame, lines, info = _read_excel(path, sheet)
     else:
-        frame, info = _read_text(path, delimiter)
+        frame, lines, info = _read_text(path, delimiter)
     source = Source(path=str(path), name=path.name, sha256=digest, **info)
-    return _finish(frame, source)
+    return _finish(frame, lines, source)
 
 
 # --------------------------------------------------------------------------- text files
@@ -166,38 +168,50 @@ def detect_delimiter(text: str) -> str:
     return best
 
 
-def _read_text(path: Path, delimiter: str) -> tuple[pd.DataFrame, dict[str, str]]:
+def _read_text(path: Path, delimiter: str) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
     text, encoding = _decode(path)
     if not text.strip():
         raise InputError(f"{path}: the file is empty")
     delim = {"tab": "\t"}.get(delimiter, delimiter)
     if delim == "auto":
         delim = detect_delimiter(text)
-    first = next((ln for ln in text.splitlines() if ln.strip()), "")
-    header = [h.strip() for h in _split(first, delim)]
+    # strict: an unclosed quote must not swallow the rest of the file into one cell
+    reader = csv.reader(io.StringIO(text, newline=""), delimiter=delim, quotechar='"',
+                        strict=True)
+    header: list[str] | None = None
+    records: list[list[str]] = []
+    lines: list[int] = []
+    try:
+        for fields in reader:
+            if header is None:
+                if any(f.strip() for f in fields):  # blank lines before the header are skipped
+                    header = [f.strip() for f in fields]
+                    while len(header) > 1 and header[-1] == "":  # a trailing delimiter
+                        header.pop()
+                continue
+            records.append(fields)
+            lines.append(reader.line_num)
+    except csv.Error as exc:
+        raise InputError(f"{path}, row {reader.line_num}: cannot be parsed as a table "
+                         f"({exc})") from None
+    if header is None:
+        raise InputError(f"{path}: holds no table (no header line)")
     duplicates = sorted({h for h in header if h and header.count(h) > 1})
     if duplicates:
         raise InputError(f"{path}, row 1: column '{duplicates[0]}' appears twice in the header")
-    try:
-        frame = pd.read_csv(
-            io.StringIO(text), sep=delim, dtype=str, keep_default_na=False,
-            skip_blank_lines=False, engine="c", quotechar='"',
-        )
-    except pd.errors.ParserError as exc:
-        raise InputError(f"{path}: {_parser_message(str(exc))}") from None
-    except (pd.errors.EmptyDataError, UnicodeError):
-        raise InputError(f"{path}: holds no table (no header line)") from None
-    frame = frame.fillna("")
-    return frame, {"format": "text", "delimiter": DELIMITERS.get(delim, repr(delim)),
-                   "encoding": encoding}
-
-
-def _parser_message(text: str) -> str:
-    match = re.search(r"Expected (\d+) fields in line (\d+), saw (\d+)", text)
-    if match:
-        want, line, got = match.groups()
-        return f"row {line}: {got} fields where the header has {want}"
-    return "cannot be parsed as a table (" + " ".join(text.split())[:120] + ")"
+    width = len(header)
+    for k, fields in enumerate(records):
+        if len(fields) > width:
+            if any(f.strip() for f in fields[width:]):
+                raise InputError(f"{path}, row {lines[k]}: {len(fields)} fields where the "
+                                 f"header has {width}")
+            del fields[width:]  # empty fields after a trailing delimiter
+        elif len(fields) < width:
+            fields.extend([""] * (width - len(fields)))
+    frame = pd.DataFrame(records, columns=header, dtype=str) if records else pd.DataFrame(
+        columns=header, dtype=str)
+    return frame, lines, {"format": "text", "delimiter": DELIMITERS.get(delim, repr(delim)),
+                          "encoding": encoding}
 
 
 # --------------------------------------------------------------------------- excel and parquet
@@ -222,57 +236,62 @@ def _cell_text(value: object) -> str:
     return str(value)
 
 
-def _read_excel(path: Path, sheet: str) -> tuple[pd.DataFrame, dict[str, str]]:
-    import zipfile
-
+def _read_excel(path: Path, sheet: str) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
     import openpyxl
 
     try:
-        book = openpyxl.load_workbook(path, read_only=True, data_only=True)
-    except (zipfile.BadZipFile, KeyError, OSError, ValueError) as exc:
-        raise InputError(f"{path}: not a readable .xlsx workbook ({exc.__class__.__name__})") from None
+        # from bytes, so that a workbook under another suffix is read all the same
+        book = openpyxl.load_workbook(io.BytesIO(path.read_bytes()), read_only=True,
+                                      data_only=True)
+    except Exception as exc:  # a damaged workbook can fail in zipfile, zlib or the XML parser
+        raise InputError(f"{path}: not a readable .xlsx workbook ({exc.__class__.__name__})"
+                         ) from None
     try:
-        if sheet:
-            if sheet not in book.sheetnames:
-                names = ", ".join(book.sheetnames)
-                raise InputError(f"{path}: no sheet named '{sheet}' (sheets: {names})")
-            ws = book[sheet]
-        else:
-            ws = book.worksheets[0]
-        rows = [[_cell_text(v) for v in row] for row in ws.iter_rows(values_only=True)]
+        if sheet and sheet not in book.sheetnames:
+            names = ", ".join(book.sheetnames)
+            raise InputError(f"{path}: no sheet named '{sheet}' (sheets: {names})")
+        ws = book[sheet] if sheet else book.worksheets[0]
         used_sheet = ws.title
+        rows = [[_cell_text(v) for v in row] for row in ws.iter_rows(values_only=True)]
+    except InputError:
+        raise
+    except Exception as exc:
+        raise InputError(f"{path}: sheet cannot be read ({exc.__class__.__name__})") from None
     finally:
         book.close()
-    if not rows:
+    numbered = [(i + 1, r) for i, r in enumerate(rows)]
+    while numbered and not any(c.strip() for c in numbered[0][1]):  # blank rows above the header
+        numbered.pop(0)
+    if not numbered:
         raise InputError(f"{path}: sheet '{used_sheet}' is empty")
-    width = max(len(r) for r in rows)
-    rows = [r + [""] * (width - len(r)) for r in rows]
-    header = rows[0]
-    while header and header[-1] == "" and all(r[len(header) - 1] == "" for r in rows):
+    width = max(len(r) for _, r in numbered)
+    header = [c.strip() for c in numbered[0][1]] + [""] * (width - len(numbered[0][1]))
+    data = [r + [""] * (width - len(r)) for _, r in numbered[1:]]
+    while header and header[-1] == "" and all(r[len(header) - 1] == "" for r in data):
         header = header[:-1]
-        rows = [r[: len(header)] for r in rows]
-    frame = pd.DataFrame(rows[1:], columns=header, dtype=str) if header else pd.DataFrame()
-    return frame, {"format": "xlsx", "sheet": used_sheet}
+        data = [r[: len(header)] for r in data]
+    frame = pd.DataFrame(data, columns=header, dtype=str) if header else pd.DataFrame()
+    return frame, [n for n, _ in numbered[1:]], {"format": "xlsx", "sheet": used_sheet}
 
 
-def _read_parquet(path: Path) -> pd.DataFrame:
-    import pyarrow as pa
+def _read_parquet(path: Path) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
     import pyarrow.parquet as pq
 
     try:
         table = pq.read_table(path)
-    except (pa.ArrowException, OSError, ValueError) as exc:
-        raise InputError(f"{path}: not a readable Parquet file ({exc.__class__.__name__})") from None
-    columns = {}
-    for name in table.column_names:
-        columns[str(name)] = [_cell_text(v) for v in table.column(name).to_pylist()]
-    return pd.DataFrame(columns, dtype=str)
+        columns = {str(name): [_cell_text(v) for v in table.column(i).to_pylist()]
+                   for i, name in enumerate(table.column_names)}
+    except Exception as exc:  # damaged files fail deep inside pyarrow, in many ways
+        raise InputError(f"{path}: not a readable Parquet file ({exc.__class__.__name__})"
+                         ) from None
+    frame = pd.DataFrame(columns, dtype=str)
+    return frame, list(range(2, len(frame) + 2)), {"format": "parquet"}
 
 
 # --------------------------------------------------------------------------- common
 
 
-def _finish(frame: pd.DataFrame, source: Source) -> RawTable:
+def _finish(frame: pd.DataFrame, lines: list[int], source: Source) -> RawTable:
     name = source.name
     if frame.shape[1] == 0:
         raise InputError(f"{name}: holds no table (no header line)")
@@ -287,7 +306,7 @@ def _finish(frame: pd.DataFrame, source: Source) -> RawTable:
     frame.columns = headers
     frame = frame.astype(str).apply(lambda col: col.str.strip())
     blank = (frame == "").all(axis=1).to_numpy()
-    rows = [i + 2 for i in range(len(frame)) if not blank[i]]
+    rows = [lines[i] for i in range(len(frame)) if not blank[i]]
     frame = frame.loc[~blank].reset_index(drop=True)
     if frame.empty:
         raise InputError(f"{name}: has a header but no data rows")

@@ -11,7 +11,7 @@ can check it against its published source:
 
 Acids titrate by their equivalents, so converting an acidity written "as
 sulfuric acid" to "as tartaric acid" multiplies by the ratio of equivalent
-masses (150.087 / 2) / (98.079 / 2) = 1.5304, as the Handbook of Enology
+masses (150.087 / 2) / (98.079 / 2) = 1.5303, as the Handbook of Enology
 (Ribereau-Gayon et al., vol. 1) gives it (1.53).
 """
 
@@ -30,7 +30,7 @@ EQ_TARTARIC = M_TARTARIC / 2  # g per equivalent
 EQ_SULFURIC = M_SULFURIC / 2
 EQ_ACETIC = M_ACETIC
 
-SULFURIC_TO_TARTARIC = EQ_TARTARIC / EQ_SULFURIC  # 1.5304
+SULFURIC_TO_TARTARIC = EQ_TARTARIC / EQ_SULFURIC  # 1.5303
 SULFURIC_TO_ACETIC = EQ_ACETIC / EQ_SULFURIC  # 1.2246
 MEQ_TO_TARTARIC = EQ_TARTARIC / 1000  # g/L per meq/L, 0.075044
 MEQ_TO_ACETIC = EQ_ACETIC / 1000  # 0.060052
@@ -55,6 +55,8 @@ def normalise_unit(text: str) -> str:
     unit = re.sub(r"\bcm3\b", "ml", unit)
     unit = unit.replace(".", "")
     unit = re.sub(r"\s*/\s*", "/", unit)
+    unit = re.sub(r"(\d)\s+([a-z])", r"\1\2", unit)  # "g/100 mL" -> "g/100ml"
+    unit = re.sub(r"\bvol\s*%", "vol%", unit)
     unit = re.sub(r"%\s*", "%", unit)
     unit = " ".join(unit.split())
     return _UNIT_ALIASES.get(unit, unit)
@@ -134,5 +136,6 @@ def factor_to_canonical(kind: Kind, unit: str | None) -> float:
         return 1.0
     if key in table:
         return table[key]
-    known = ", ".join(sorted({kind.unit, *(k for k in table if k)}))
+    canonical = normalise_unit(kind.unit)
+    known = ", ".join([kind.unit, *sorted(k for k in table if k and k != canonical)])
     raise KeyError(f"unit '{unit}' is not known for {kind.label}; known units: {known}")
