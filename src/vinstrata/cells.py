@@ -82,39 +82,50 @@ def parse_cells(cells: pd.Series, decimal: str = ".", censored: str = "half_limi
         One of ``ok``, ``missing``, ``censored_below``, ``censored_above``,
         ``non_numeric`` per cell.
     """
-    text = cells.astype(str).str.strip()
-    lower = text.str.lower()
-    values = _to_float(text, decimal)
+    text = cells.astype(str).str.strip().reset_index(drop=True)
+    # fast path: most cells are plain numbers
+    plain = text.str.replace(",", ".", regex=False) if decimal == "," else text
+    out = pd.to_numeric(plain, errors="coerce").to_numpy(dtype=float, na_value=np.nan).copy()
     states = np.full(len(text), OK, dtype=object)
+    hard = ~np.isfinite(out)
+    if decimal == ",":
+        hard |= text.str.contains(".", regex=False).to_numpy()  # "1.250,5" or a stray point
+    if not hard.any():
+        return out, states
+    idx = np.flatnonzero(hard)
+    sub = text.iloc[idx]
+    lower = sub.str.lower()
+    values = _to_float(sub, decimal).to_numpy(dtype=float, na_value=np.nan).copy()
+    sub_states = np.full(idx.size, OK, dtype=object)
     missing = lower.isin(MISSING_TOKENS).to_numpy()
-    states[missing] = MISSING
-
-    below = text.str.extract(_BELOW)["num"]
-    above = text.str.extract(_ABOVE)["num"]
-    below_num = _to_float(below.fillna(""), decimal)
-    above_num = _to_float(above.fillna(""), decimal)
+    sub_states[missing] = MISSING
+    below_num = _to_float(sub.str.extract(_BELOW)["num"].fillna(""), decimal).to_numpy(
+        dtype=float, na_value=np.nan)
+    above_num = _to_float(sub.str.extract(_ABOVE)["num"].fillna(""), decimal).to_numpy(
+        dtype=float, na_value=np.nan)
     token = lower.isin(CENSORED_TOKENS).to_numpy()
-    is_below = below_num.notna().to_numpy() & (below_num >= 0).to_numpy() & ~token
-    is_above = above_num.notna().to_numpy()
-
+    is_below = np.isfinite(below_num) & (below_num >= 0) & ~token
+    is_above = np.isfinite(above_num)
     share = 0.5 if censored == "half_limit" else 1.0
-    out = values.to_numpy(dtype=float, na_value=np.nan).copy()
-    out[is_below] = below_num.to_numpy()[is_below] * share
-    states[is_below] = CENSORED_BELOW
-    out[is_above] = above_num.to_numpy()[is_above]
-    states[is_above] = CENSORED_ABOVE
+    values[is_below] = below_num[is_below] * share
+    sub_states[is_below] = CENSORED_BELOW
+    values[is_above] = above_num[is_above]
+    sub_states[is_above] = CENSORED_ABOVE
     if token.any():
-        limits = below_num.to_numpy()[is_below]
-        measured = out[(states == OK) & np.isfinite(out) & (out > 0)]
+        limits = below_num[is_below]
+        measured = np.concatenate([out[~hard], values[sub_states == OK]])
+        measured = measured[np.isfinite(measured) & (measured > 0)]
         if limits.size:
             base = float(limits.min())
         elif measured.size:
             base = float(measured.min())
         else:
             base = 0.0
-        out[token] = base * share
-        states[token] = CENSORED_BELOW
-    bad = (states == OK) & ~np.isfinite(out)
-    states[bad] = NON_NUMERIC
-    out[missing | bad] = np.nan
+        values[token] = base * share
+        sub_states[token] = CENSORED_BELOW
+    bad = (sub_states == OK) & ~np.isfinite(values)
+    sub_states[bad] = NON_NUMERIC
+    values[missing | bad] = np.nan
+    out[idx] = values
+    states[idx] = sub_states
     return out, states

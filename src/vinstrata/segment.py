@@ -216,24 +216,64 @@ def fit_hdbscan(space: np.ndarray, min_cluster_size: int, min_samples: int,
     ).fit(space)
 
 
+def sweep_labels(space: np.ndarray, candidates: list[tuple[int, int]]
+                 ) -> tuple[dict[tuple[int, int], tuple[np.ndarray, np.ndarray]],
+                            dict[int, np.ndarray], dict[tuple[int, int], object]]:
+    """HDBSCAN labels and probabilities of every (min_cluster_size, min_samples) candidate.
+
+    The mutual-reachability tree depends on min_samples only, so HDBSCAN is fitted
+    once per min_samples and the tree is condensed again for each cluster size, as
+    hdbscan itself does inside a fit (its ``_tree_to_labels``); where that helper
+    is missing every candidate is fitted in full.
+
+    Returns
+    -------
+    labels : dict
+        (size, samples) -> (labels, probabilities)
+    trees : dict
+        samples -> minimum spanning tree (for the relative validity)
+    fitted : dict
+        (size, samples) -> the clusterer, for the candidates fitted in full
+    """
+    try:
+        from hdbscan.hdbscan_ import _tree_to_labels
+    except ImportError:  # pragma: no cover - other hdbscan versions
+        _tree_to_labels = None
+    labels: dict[tuple[int, int], tuple[np.ndarray, np.ndarray]] = {}
+    trees: dict[int, np.ndarray] = {}
+    fitted: dict[tuple[int, int], object] = {}
+    linkage: dict[int, np.ndarray] = {}
+    for size, samples in candidates:
+        if samples not in trees or _tree_to_labels is None:
+            clusterer = fit_hdbscan(space, size, samples)
+            fitted[(size, samples)] = clusterer
+            trees[samples] = clusterer.minimum_spanning_tree_.to_numpy()
+            linkage[samples] = clusterer.single_linkage_tree_.to_numpy()
+            labels[(size, samples)] = (np.asarray(clusterer.labels_, dtype=int),
+                                       np.asarray(clusterer.probabilities_, dtype=float))
+            continue
+        out = _tree_to_labels(None, linkage[samples], min_cluster_size=int(size),
+                              cluster_selection_method="eom")
+        labels[(size, samples)] = (np.asarray(out[0], dtype=int), np.asarray(out[1], dtype=float))
+    return labels, trees, fitted
+
+
 def evaluate(space: np.ndarray, scaled: np.ndarray, min_cluster_size: int, min_samples: int,
-             merge_valley: float) -> tuple[Clustering, object]:
-    """Fit one candidate, join split clusters and score the joined result."""
-    clusterer = fit_hdbscan(space, min_cluster_size, min_samples)
-    clusters = np.asarray(clusterer.labels_, dtype=int)
+             merge_valley: float, clusters: np.ndarray, probabilities: np.ndarray,
+             mst: np.ndarray) -> Clustering:
+    """Score one candidate: join split clusters, dissolve diffuse groups, relative validity."""
     n_clusters = int(clusters.max() + 1) if clusters.size else 0
     group_of_cluster, _ = join_split_clusters(scaled, fill_noise(space, clusters), merge_valley)
     group_of_cluster = drop_diffuse(scaled, clusters, group_of_cluster)
     groups = lot_groups(clusters, group_of_cluster) if n_clusters else clusters
-    mst = clusterer.minimum_spanning_tree_.to_numpy()
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         validity = relative_validity(mst, groups)
     return Clustering(
         min_cluster_size=int(min_cluster_size), min_samples=int(min_samples), clusters=clusters,
-        group_of_cluster=group_of_cluster, probabilities=np.asarray(clusterer.probabilities_),
+        group_of_cluster=group_of_cluster, probabilities=probabilities,
         validity=validity, noise_share=float((clusters < 0).mean()),
-    ), clusterer
+    )
 
 
 def choose_size(results: list[Clustering]) -> Clustering:
@@ -505,18 +545,20 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     # HDBSCAN, joined clusters, chosen size
     sizes = (sweep_sizes(n, seg.sweep) if seg.min_cluster_size == AUTO
              else [min(int(seg.min_cluster_size), n - 1)])
-    results, clusterers = [], []
-    for i, size in enumerate(sizes):
-        ms = default_min_samples(size) if seg.min_samples == AUTO else int(seg.min_samples)
-        result, fitted = evaluate(space, scaled, size, min(ms, n - 1), seg.merge_valley)
-        results.append(result)
-        clusterers.append(fitted)
-        rep.bar(i + 1, len(sizes), "  cluster-size sweep")
-    chosen = choose_size(results)
-    final = chosen
-    clusterer = clusterers[results.index(chosen)]
+    candidates = [(size, min(default_min_samples(size) if seg.min_samples == AUTO
+                             else int(seg.min_samples), n - 1)) for size in sizes]
+    labels, trees, fitted = sweep_labels(space, candidates)
+    results = []
+    for i, (size, samples) in enumerate(candidates):
+        results.append(evaluate(space, scaled, size, samples, seg.merge_valley,
+                                *labels[(size, samples)], trees[samples]))
+        rep.bar(i + 1, len(candidates), "  cluster-size sweep")
+    final = choose_size(results)
+    key = (final.min_cluster_size, final.min_samples)
+    clusterer = fitted.get(key) or fit_hdbscan(space, *key)
+    if not np.array_equal(np.asarray(clusterer.labels_), final.clusters):
+        raise RuntimeError("HDBSCAN's sweep labels and its fit disagree")
     clusterer.generate_prediction_data()
-    del clusterers
     groups = final.groups
     n_groups = max(final.n_groups, 1)
     if final.n_groups <= 1:
@@ -578,8 +620,8 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     })
     params = {
         "space": seg.space, "components": int(space.shape[1]), "neighbours": int(k_graph),
-        "epochs": int(epochs), "min_cluster_size": int(chosen.min_cluster_size),
-        "min_samples": int(chosen.min_samples), "seed": seed,
+        "epochs": int(epochs), "min_cluster_size": int(final.min_cluster_size),
+        "min_samples": int(final.min_samples), "seed": seed,
         "size_choice": "sweep" if seg.min_cluster_size == AUTO else "fixed",
         "merge_valley": float(seg.merge_valley), "n_clusters": int(final.n_clusters),
         "cluster_styles": [style_ids[rank[int(g)]] if int(g) in rank else ""
@@ -601,7 +643,7 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
         scaled=scaled, space=np.asarray(space, dtype=np.float32),
         map2d=np.asarray(map2d, dtype=np.float32), clusters=final.clusters.astype(np.int64),
         memberships=soft_styles.astype(np.float64), styles=styles, style_stats=stats,
-        sweep=sweep_table(results, chosen), params=params, outliers=outliers,
+        sweep=sweep_table(results, final), params=params, outliers=outliers,
         versions=software_versions(), has_grade=table.has_grade,
     )
 
