@@ -261,8 +261,11 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
 
 
 def _join_near(near: pd.DataFrame, n: int) -> list[str]:
-    grouped = near.groupby("lot_id", sort=True)["neighbour_lot"].apply(";".join)
-    return [grouped.get(i, "") for i in range(n)]
+    """The neighbour ids of each lot, ';'-separated (``near`` is lot-major, rank-minor)."""
+    if n == 0:
+        return []
+    ids = near["neighbour_lot"].astype(str).to_numpy().reshape(n, -1)
+    return [";".join(row) for row in ids]
 
 
 def _empty_lots(table: LotTable, model: StyleModel) -> pd.DataFrame:
@@ -285,23 +288,28 @@ def _predict(model: StyleModel, space: np.ndarray) -> tuple[np.ndarray, np.ndarr
     import hdbscan
 
     clusterer = rebuild_clusterer(model)
+    cluster_styles = model.params["cluster_styles"]
+    position = {sid: s for s, sid in enumerate(model.style_ids)}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         clusters, strength = hdbscan.approximate_predict(clusterer, space)
-        vectors = np.asarray(hdbscan.membership_vector(clusterer, space), dtype=float)
-    vectors = vectors.reshape(n, -1)
-    cluster_styles = model.params["cluster_styles"]
-    position = {sid: s for s, sid in enumerate(model.style_ids)}
-    soft = np.zeros((n, n_styles))
-    for c, sid in enumerate(cluster_styles):
-        if sid in position:
-            soft[:, position[sid]] += vectors[:, c]
-    style_index = np.array([position.get(cluster_styles[c], -1) if c >= 0 else -1
-                            for c in clusters], dtype=int)
-    nearest = np.where(style_index >= 0, style_index, np.argmax(soft, axis=1))
-    total = np.maximum(soft.sum(axis=1), 1e-12)
-    membership = np.where(style_index >= 0, np.asarray(strength, dtype=float),
-                          soft[np.arange(n), nearest] / total)
+        style_index = np.array([position.get(cluster_styles[c], -1) if c >= 0 else -1
+                                for c in clusters], dtype=int)
+        membership = np.asarray(strength, dtype=float).copy()
+        nearest = style_index.copy()
+        loose = np.flatnonzero(style_index < 0)
+        if loose.size:
+            # soft membership only where a lot has no style: it names the nearest one
+            vectors = np.asarray(hdbscan.membership_vector(clusterer, space[loose]), dtype=float)
+            vectors = vectors.reshape(loose.size, -1)
+            soft = np.zeros((loose.size, n_styles))
+            for c, sid in enumerate(cluster_styles):
+                if sid in position:
+                    soft[:, position[sid]] += vectors[:, c]
+            best = np.argmax(soft, axis=1)
+            nearest[loose] = best
+            membership[loose] = soft[np.arange(loose.size), best] / np.maximum(
+                soft.sum(axis=1), 1e-12)
     return style_index, membership, nearest
 
 

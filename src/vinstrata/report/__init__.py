@@ -19,6 +19,8 @@ from vinstrata.profile import Profiles
 from vinstrata.report import pages
 from vinstrata.report.pages import Briefing
 
+RASTER_DPI = 130  # resolution of the rasterised scatter layers; text stays vector
+
 
 def briefing_date() -> str:
     """Today, or the date of ``SOURCE_DATE_EPOCH`` when set (for reproducible files)."""
@@ -76,5 +78,5 @@ def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | Non
     with PdfPages(path, metadata=metadata) as pdf:
         for number, build in enumerate(builders, start=1):
             figure = build(data, number)
-            pdf.savefig(figure, dpi=150)
+            pdf.savefig(figure, dpi=RASTER_DPI)
     return path

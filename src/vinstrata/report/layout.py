@@ -16,8 +16,8 @@ import matplotlib
 
 matplotlib.use("Agg")
 
-from matplotlib.axes import Axes  # noqa: E402
-from matplotlib.figure import Figure  # noqa: E402
+from matplotlib.axes import Axes
+from matplotlib.figure import Figure
 
 PAGE = (8.27, 11.69)  # A4 portrait, inches
 MARGIN = 0.06
@@ -26,6 +26,8 @@ OKABE_ITO = ("#E69F00", "#56B4E9", "#009E73", "#F0E442", "#0072B2", "#D55E00", "
 TOL_MUTED = ("#332288", "#88CCEE", "#44AA99", "#117733", "#999933", "#DDCC77", "#CC6677",
              "#882255", "#AA4499")
 UNASSIGNED_COLOUR = "#BBBBBB"
+LINE_ADVANCE = 1.45  # line height in font sizes
+LINESPACING = 1.24  # matplotlib's multi-line spacing giving that advance for DejaVu fonts
 WARN_COLOUR = "#B2182B"
 INK = "#222222"
 MUTED = "#666666"
@@ -76,7 +78,7 @@ def text_block(fig: Figure, top: float, paragraphs: Sequence[str], size: float =
 
     Stops before ``bottom``; the caller says what was left out.
     """
-    line = size / 72 / PAGE[1] * 1.45
+    line = size / 72 / PAGE[1] * LINE_ADVANCE
     y = top
     written = 0
     for para in paragraphs:
@@ -84,14 +86,30 @@ def text_block(fig: Figure, top: float, paragraphs: Sequence[str], size: float =
         needed = line * (len(lines) + gap)
         if y - needed < bottom:
             break
-        for k, text in enumerate(lines):
-            prefix = bullet if k == 0 else " " * len(bullet)
-            fig.text(left, y, prefix + text, fontsize=size, color=INK, va="top",
-                     family="DejaVu Sans")
-            y -= line
-        y -= line * gap
+        body = [(bullet if k == 0 else " " * len(bullet)) + text for k, text in enumerate(lines)]
+        # one text artist per paragraph: far fewer layouts than one per line
+        fig.text(left, y, "\n".join(body), fontsize=size, color=INK, va="top",
+                 linespacing=LINESPACING)
+        y -= line * len(lines) + line * gap
         written += 1
     return y, written
+
+
+def mono_block(fig: Figure, top: float, rows: Sequence[str], size: float = 7.5,
+               left: float = MARGIN, bold_first: bool = False) -> float:
+    """Rows of a fixed-width table as one text artist; returns the y below it."""
+    line = size / 72 / PAGE[1] * LINE_ADVANCE
+    if not rows:
+        return top
+    start = 0
+    if bold_first:
+        fig.text(left, top, rows[0], fontsize=size, family="monospace", fontweight="bold",
+                 color=INK, va="top")
+        start = 1
+    if len(rows) > start:
+        fig.text(left, top - line * start, "\n".join(rows[start:]), fontsize=size,
+                 family="monospace", color=INK, va="top", linespacing=LINESPACING)
+    return top - line * len(rows)
 
 
 def heading(fig: Figure, y: float, text: str, size: float = 11.0) -> float:

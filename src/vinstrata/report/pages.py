@@ -24,11 +24,26 @@ from vinstrata.place import INDICATION, Placements
 from vinstrata.profile import POOLED, Profiles, driver_summary
 from vinstrata.quality import reason_counts
 from vinstrata.report.layout import (
-    INK, MARGIN, MUTED, UNASSIGNED_COLOUR, WARN_COLOUR, band_colours, footer, heading,
-    new_page, style_colour, text_block, tidy, wrap,
+    INK,
+    LINE_ADVANCE,
+    LINESPACING,
+    MARGIN,
+    MUTED,
+    PAGE,
+    UNASSIGNED_COLOUR,
+    WARN_COLOUR,
+    band_colours,
+    footer,
+    heading,
+    mono_block,
+    new_page,
+    style_colour,
+    text_block,
+    tidy,
+    wrap,
 )
 
-MAX_TABLE_ROWS = 44
+MAX_TABLE_ROWS = 48
 MAX_LABELLED = 60
 
 
@@ -244,9 +259,7 @@ def segmentation(data: Briefing, page: int) -> Figure:
         v = f"{r.relative_validity:.3f}" if np.isfinite(r.relative_validity) else "-"
         rows.append(f"{r.min_cluster_size:>6} {r.min_samples:>8} {r.n_clusters:>9} "
                     f"{r.n_styles:>7} {100 * r.unassigned_share:>10.1f}% {v:>9}{mark}")
-    for k, line in enumerate(rows):
-        fig.text(MARGIN + 0.05, y - 0.02 - k * 0.018, line, fontsize=8, family="monospace",
-                 color=INK, va="top")
+    mono_block(fig, y - 0.02, rows, size=8, left=MARGIN + 0.05, bold_first=True)
     return _finish(fig, data, page)
 
 
@@ -286,19 +299,20 @@ def style_card(data: Briefing, sid: str, page: int) -> Figure:
     drivers = None
     if data.profiles is not None:
         d = data.profiles.drivers
-        drivers = d[d["style"] == sid].set_index("analyte")
-        for k, a in enumerate(analytes):
-            r = drivers.loc[a]
-            yk = pos[k]
-            if not np.isfinite(r["cliffs_delta"]):
-                ax2.text(0, yk, "insufficient", fontsize=6, color=MUTED, ha="center",
-                         va="center")
-                continue
-            colour = data.colour(sid) if r["is_driver"] else "#999999"
-            ax2.plot([r["ci_low"], r["ci_high"]], [yk, yk], color=colour, linewidth=1.4)
-            ax2.plot([r["cliffs_delta"]], [yk], "o", markersize=5,
-                     markerfacecolor=colour if r["is_driver"] else "white",
-                     markeredgecolor=colour)
+        drivers = d[d["style"] == sid].set_index("analyte").reindex(analytes)
+        delta = drivers["cliffs_delta"].to_numpy(dtype=float)
+        lows, highs = drivers["ci_low"].to_numpy(dtype=float), drivers["ci_high"].to_numpy(float)
+        driver = drivers["is_driver"].fillna(False).astype(bool).to_numpy() & np.isfinite(delta)
+        plain = ~driver & np.isfinite(delta)
+        colour = data.colour(sid)
+        ax2.hlines(pos[driver], lows[driver], highs[driver], color=colour, linewidth=1.4)
+        ax2.hlines(pos[plain], lows[plain], highs[plain], color="#999999", linewidth=1.4)
+        ax2.scatter(delta[driver], pos[driver], s=22, c=colour, zorder=3)
+        ax2.scatter(delta[plain], pos[plain], s=22, facecolors="white", edgecolors="#999999",
+                    zorder=3)
+        for k in np.flatnonzero(~np.isfinite(delta)):
+            ax2.text(0, pos[k], "insufficient", fontsize=6, color=MUTED, ha="center",
+                     va="center")
         ax2.set_xlim(-1, 1)
         ax2.set_ylim(-0.7, len(analytes) - 0.3)
         ax2.axvline(0, color="#999999", linewidth=0.6)
@@ -446,23 +460,22 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
     ax = _map_axes(fig, [0.1, 0.3, 0.82, 0.6])
     ax.scatter(lots["map_x"], lots["map_y"], s=2, c="#DDDDDD", linewidths=0, rasterized=True)
     details = placements.details
-    used = placements.lots[placements.lots["status"] == "used"].set_index("lot_id")
-    labelled = 0
-    for r in details.itertuples():
-        style = r.style
-        atyp = bool(used.loc[r.lot_id, "atypical"])
-        if style == UNASSIGNED:
-            ax.scatter([r.map_x], [r.map_y], marker="x", s=28, c="black", linewidths=1.2)
-        else:
-            ax.scatter([r.map_x], [r.map_y], s=22, c=data.colour(style), edgecolors=INK,
-                       linewidths=0.4)
-        if atyp:
-            ax.scatter([r.map_x], [r.map_y], s=90, facecolors="none", edgecolors=WARN_COLOUR,
-                       linewidths=1.0)
-        if len(details) <= MAX_LABELLED or (atyp and labelled < MAX_LABELLED):
-            ax.annotate(str(r.lot_id), (r.map_x, r.map_y), fontsize=5, xytext=(3, 3),
-                        textcoords="offset points", color=INK)
-            labelled += 1
+    used = placements.lots[placements.lots["status"] == "used"].drop_duplicates("lot_id")
+    atypical = details["lot_id"].map(used.set_index("lot_id")["atypical"]).astype(bool)
+    atypical = atypical.to_numpy()
+    x, y = details["map_x"].to_numpy(), details["map_y"].to_numpy()
+    style = details["style"].to_numpy(dtype=object)
+    none = style == UNASSIGNED
+    ax.scatter(x[none], y[none], marker="x", s=28, c="black", linewidths=1.2)
+    for sid in dict.fromkeys(style[~none]):
+        mask = style == sid
+        ax.scatter(x[mask], y[mask], s=22, c=data.colour(sid), edgecolors=INK, linewidths=0.4)
+    ax.scatter(x[atypical], y[atypical], s=90, facecolors="none", edgecolors=WARN_COLOUR,
+               linewidths=1.0)
+    label = np.ones(len(details), dtype=bool) if len(details) <= MAX_LABELLED else atypical
+    for k in np.flatnonzero(label)[:MAX_LABELLED]:
+        ax.annotate(str(details["lot_id"].iloc[k]), (x[k], y[k]), fontsize=5, xytext=(3, 3),
+                    textcoords="offset points", color=INK)
     n_atyp = int(used["atypical"].astype(bool).sum())
     text_block(fig, 0.25, [
         f"{len(details)} new lots placed, {n_atyp} atypical; "
@@ -483,26 +496,26 @@ def new_lots_table(data: Briefing, page: int) -> Figure:
         return _finish(fig, data, page)
     details = placements.details.set_index("lot_id")
     header = f"{'lot':<14}{'style':<10}{'atypical':<10}{'band (top share)':<18}flags"
-    fig.text(MARGIN, 0.91, header, fontsize=7, family="monospace", fontweight="bold", va="top")
-    y = 0.89
-    ordered = pd.concat([used[used["atypical"].astype(bool)], used[~used["atypical"].astype(bool)]])
-    for r in ordered.head(MAX_TABLE_ROWS).itertuples():
+    ordered = pd.concat([used[used["atypical"].astype(bool)],
+                         used[~used["atypical"].astype(bool)]])
+    y = mono_block(fig, 0.91, [header], size=7, bold_first=True)
+    line = 6.5 / 72 / PAGE[1] * LINE_ADVANCE
+    shown = 0
+    for r in ordered.itertuples():
         band = (f"{r.indicative_band} ({r.share_top:.0%})" if r.indicative_band else "-")
-        flags = details.loc[r.lot_id, "flags_short"]
         style = "no style" if r.style == UNASSIGNED else r.style
         first = f"{str(r.lot_id)[:13]:<14}{style:<10}{'YES' if r.atypical else '':<10}" \
                 f"{band[:17]:<18}"
-        chunks = wrap(str(flags), 62)
+        chunks = wrap(str(details.loc[r.lot_id, "flags_short"]), 62)
         if len(chunks) > 2:
             chunks = [chunks[0], chunks[1][:58] + " ..."]
-        for k, chunk in enumerate(chunks):
-            prefix = first if k == 0 else " " * len(first)
-            fig.text(MARGIN, y, prefix + chunk, fontsize=6.5, family="monospace",
-                     color=WARN_COLOUR if r.atypical and k == 0 else INK, va="top")
-            y -= 0.0175
-        if y < 0.07:
+        if y - line * len(chunks) < 0.07 or shown >= MAX_TABLE_ROWS:
             break
-    shown = min(len(ordered), MAX_TABLE_ROWS)
+        text = [first + chunks[0]] + [" " * len(first) + c for c in chunks[1:]]
+        fig.text(MARGIN, y, "\n".join(text), fontsize=6.5, family="monospace", va="top",
+                 color=WARN_COLOUR if r.atypical else INK, linespacing=LINESPACING)
+        y -= line * len(text) + line * 0.25
+        shown += 1
     if len(ordered) > shown:
         fig.text(MARGIN, 0.05, f"... {len(ordered) - shown} more lots in placements.csv "
                  "(atypical lots listed first).", fontsize=7, color=MUTED)
@@ -532,19 +545,16 @@ def data_quality(data: Briefing, page: int) -> Figure:
         ax.set_xlabel("rejected rows (count)", fontsize=7)
         y -= 0.24
     y = heading(fig, y, "Per analyte (used lots)", size=10)
-    header = f"{'analyte':<24}{'unit':<30}{'imputed':>9}{'censored':>10}{'measured':>10}"
-    fig.text(MARGIN, y, header, fontsize=7.5, family="monospace", fontweight="bold", va="top")
-    y -= 0.02
+    rows = [f"{'analyte':<24}{'unit':<30}{'imputed':>9}{'censored':>10}{'measured':>10}"]
     for spec in model.specs:
         flags = model.flags[spec.name]
         imputed = int((flags == MISSING).sum())
         censored = int(flags.isin([CENSORED_BELOW, CENSORED_ABOVE]).sum())
         unit = spec.unit if spec.unit_in == spec.unit else f"{spec.unit_in} -> {spec.unit}"
         dropped = " (constant: dropped)" if spec.name in model.scaler.dropped else ""
-        fig.text(MARGIN, y, f"{spec.name[:23]:<24}{unit[:29]:<30}{imputed:>9}{censored:>10}"
-                            f"{len(flags) - imputed - censored:>10}{dropped}",
-                 fontsize=7.5, family="monospace", va="top")
-        y -= 0.018
+        rows.append(f"{spec.name[:23]:<24}{unit[:29]:<30}{imputed:>9}{censored:>10}"
+                    f"{len(flags) - imputed - censored:>10}{dropped}")
+    y = mono_block(fig, y, rows, size=7.5, bold_first=True)
     text_block(fig, y - 0.02, [
         "Imputed: missing cells of used lots, filled from the 5 most similar lots (scaled "
         "chemistry) for the styles only; profiles leave them out.",
