@@ -23,7 +23,8 @@ from vinstrata.model import load_model
 from vinstrata.bands import assign_bands
 model = load_model(sys.argv[1]); b = int(sys.argv[2])
 lots = model.lots; rng = np.random.default_rng(0)
-bands = assign_bands(lots["grade"].to_numpy(float), lots["style"].to_numpy(object), model.config.bands)
+bands = assign_bands(lots["grade"].to_numpy(float), lots["style"].to_numpy(object),
+                     model.config.bands)
 top, bottom = len(model.config.bands.labels) - 1, 0
 groups = [lots["style"].to_numpy() == s for s in model.style_ids] + [np.ones(len(lots), bool)]
 for mask in groups:

@@ -25,14 +25,16 @@ STRAIGHT = """
 import sys, json, numpy as np, pandas as pd, umap, hdbscan
 from sklearn.preprocessing import RobustScaler
 from sklearn.impute import SimpleImputer
-lots, out, mcs, ms, seed = sys.argv[1], sys.argv[2], int(sys.argv[3]), int(sys.argv[4]), int(sys.argv[5])
+lots, out = sys.argv[1], sys.argv[2]
+mcs, ms, seed = int(sys.argv[3]), int(sys.argv[4]), int(sys.argv[5])
 analytes = json.loads(sys.argv[6])
 frame = pd.read_csv(lots)
 frame = frame[frame["lot"].notna() & frame["grade"].notna()].drop_duplicates("lot")
 x = frame[analytes].apply(pd.to_numeric, errors="coerce")
 x = RobustScaler().fit_transform(SimpleImputer(strategy="median").fit_transform(x))
 space = umap.UMAP(n_components=8, min_dist=0.0, random_state=seed).fit_transform(x)
-labels = hdbscan.HDBSCAN(min_cluster_size=mcs, min_samples=ms, prediction_data=True).fit(space).labels_
+clusterer = hdbscan.HDBSCAN(min_cluster_size=mcs, min_samples=ms, prediction_data=True)
+labels = clusterer.fit(space).labels_
 map2d = umap.UMAP(n_components=2, random_state=seed).fit_transform(x)
 pd.DataFrame({"lot_id": frame["lot"].astype(str), "label": labels}).to_csv(out, index=False)
 """
@@ -44,7 +46,7 @@ def main() -> None:
     script = work / "straight.py"
     script.write_text(STRAIGHT)
     ours_cache, theirs_cache = work / "numba_ours", work / "numba_theirs"
-    print(f"demo range: {lots} ({sum(1 for _ in open(lots)) - 1} rows)")
+    print(f"demo range: {lots} ({len(lots.read_text().splitlines()) - 1} rows)")
     runs = {}
     for attempt in ("first run, empty numba cache", "again, cache warm"):
         runs[f"vinstrata segment ({attempt})"] = ours = run_cold(

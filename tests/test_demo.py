@@ -3,8 +3,8 @@
 from __future__ import annotations
 
 import pandas as pd
-from conftest import DEMO
 
+from conftest import DEMO
 from vinstrata.demo import ANALYTES, PRODUCER, RECIPES, generate_demo, write_demo
 
 

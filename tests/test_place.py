@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import pandas as pd
 import pytest
-from conftest import DEMO, ROOT
 
+from conftest import DEMO, ROOT
 from vinstrata import pipeline
 from vinstrata.limits import CAUTION
 from vinstrata.place import PLACEMENT_COLUMNS, describe, place_lots
@@ -158,3 +158,15 @@ def test_grade_column_is_optional_for_new_lots(demo_model, demo_profiles, tmp_pa
     frame.to_csv(path, index=False)
     placed = _place(demo_model, demo_profiles, path).lots
     assert (placed["status"] == "used").all()
+
+
+def test_config_for_other_analytes_is_refused_naming_the_difference(demo_model_dir, tmp_path,
+                                                                    run_cli):
+    text = CONFIG.read_text().replace('"ph",', "")
+    other = tmp_path / "other.toml"
+    other.write_text(text)
+    result = run_cli("-q", "place", DEMO / "new_lots.csv", "--model", demo_model_dir,
+                     "--config", other, "--out", tmp_path / "out")
+    assert result.code == 2
+    assert result.err.count("\n") == 1
+    assert "differ from the model" in result.err and "ph" in result.err

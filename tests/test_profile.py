@@ -7,8 +7,8 @@ import dataclasses
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import DEMO
 
+from conftest import DEMO
 from vinstrata.config import packaged_config
 from vinstrata.demo import generate_demo
 from vinstrata.ingest import RawTable, Source

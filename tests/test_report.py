@@ -6,9 +6,9 @@ import shutil
 import subprocess
 
 import pytest
-from conftest import DEMO
 from pypdf import PdfReader
 
+from conftest import DEMO
 from vinstrata import pipeline
 from vinstrata.limits import CAUTION
 from vinstrata.place import place_lots
@@ -76,3 +76,13 @@ def test_brief_cli_reads_the_profile_and_place_folders(demo_model_dir, tmp_path,
                      "--placements", tmp_path / "n", "--out", tmp_path / "b.pdf")
     assert result.code == 0, result
     assert len(PdfReader(str(tmp_path / "b.pdf")).pages) >= 9
+
+
+def test_briefing_is_byte_identical_for_the_same_inputs(demo_model, demo_profiles, tmp_path,
+                                                        monkeypatch):
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1796083200")  # a fixed day for the cover
+    first = write_briefing(tmp_path / "a.pdf", demo_model, demo_profiles)
+    second = write_briefing(tmp_path / "b.pdf", demo_model, demo_profiles)
+    assert first.read_bytes() == second.read_bytes()
+    assert b"2026-12-01" in first.read_bytes() or "2026-12-01" in " ".join(
+        p.extract_text() for p in PdfReader(str(first)).pages)

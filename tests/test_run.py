@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import pandas as pd
-from conftest import DEMO
 from pypdf import PdfReader
 
+from conftest import DEMO
 from vinstrata.report import page_count
 
 CONTRACT_FILES = (

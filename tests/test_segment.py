@@ -7,15 +7,19 @@ import pandas as pd
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
+from conftest import DEMO
 from vinstrata.config import packaged_config
 from vinstrata.demo import generate_demo, write_demo
 from vinstrata.model import UNASSIGNED, load_model
 from vinstrata.segment import (
-    fill_noise, fit_hdbscan, fit_styles, join_split_clusters, relative_validity, valley_ratio,
+    fill_noise,
+    fit_hdbscan,
+    fit_styles,
+    join_split_clusters,
+    relative_validity,
+    valley_ratio,
 )
 from vinstrata.validate import load_lots
-
-from conftest import DEMO
 
 
 @pytest.fixture(scope="module")
@@ -51,7 +55,7 @@ def test_hdbscan_labels_agree_with_scikit_learn_hdbscan(demo_model):
     from sklearn.cluster import HDBSCAN
 
     params = demo_model.params
-    reference = HDBSCAN(min_cluster_size=params["min_cluster_size"],
+    reference = HDBSCAN(min_cluster_size=params["min_cluster_size"], copy=True,
                         min_samples=params["min_samples"]).fit(demo_model.space)
     assert adjusted_rand_score(reference.labels_, demo_model.clusters) >= 0.99
 

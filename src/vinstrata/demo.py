@@ -53,7 +53,8 @@ class StyleRecipe:
     share: float
     base_grade: float
     extract: tuple[float, float]  # non-sugar extract, g/L (mean, sd), for density
-    chemistry: dict[str, tuple[str, float, float]]  # analyte -> ("n", mean, sd) | ("ln", median, sdlog)
+    # analyte -> ("n", mean, sd) or ("ln", median, sdlog)
+    chemistry: dict[str, tuple[str, float, float]]
     drivers: dict[str, float]  # analyte -> grade points per within-style SD
 
 

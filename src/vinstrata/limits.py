@@ -139,7 +139,8 @@ def screen(values: pd.DataFrame, specs: tuple[AnalyteSpec, ...], colours: np.nda
             red = colours[i] == "red"
             floor = settings.molecular_so2_min_red if red else settings.molecular_so2_min_white_rose
             if mol[i] < floor:
-                kind = "red" if red else "white/rosé" if colours[i] else "white/rosé (colour unknown)"
+                kind = ("red" if red else "white/rosé" if colours[i]
+                        else "white/rosé (colour unknown)")
                 out[i].append(Flag("molecular_so2_low",
                                    f"molecular SO2 {mol[i]:.2f} mg/L below the {floor:g} mg/L "
                                    f"target for {kind} wine (pH {ph[i]:.2f}, free SO2 "

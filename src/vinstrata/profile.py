@@ -194,8 +194,7 @@ def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndar
     for row in drivers.itertuples():
         values = observed[row.analyte]
         xt, xb = values[top_rows], values[bottom_rows]
-        ok_t, ok_b = np.isfinite(xt), np.isfinite(xb)
-        top = xt[ok_t]
+        top = xt[np.isfinite(xt)]
         enough_top = top.size >= prof.min_band_lots
         item = {
             "style": group.style, "analyte": row.analyte, "direction": "", "cut": np.nan,

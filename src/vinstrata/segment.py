@@ -10,7 +10,8 @@
    min_dist 0 tears even a single cloud of lots into pieces, so two clusters
    are kept apart only when the scaled chemistry itself shows a valley between
    them: along Fisher's discriminant axis of the two clusters (Ledoit-Wolf
-   shrunk covariance), the smoothed density of their lots must dip below ``segment.merge_valley`` (0.5) times the
+   shrunk covariance), the smoothed density of their lots must dip below
+   ``segment.merge_valley`` (0.5) times the
    lower of the two peaks (a single unimodal cloud shows no valley along any
    straight line). A range with no real structure so comes out as one style,
    and then HDBSCAN's noise lots, which only mark the seams between the

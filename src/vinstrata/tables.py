@@ -15,7 +15,7 @@ import pandas as pd
 
 def _float_text(values: np.ndarray) -> list[str]:
     # "%.6g" per value in a comprehension: several times faster than to_csv's float_format
-    return ["" if v != v else "%.6g" % v for v in values.tolist()]
+    return ["" if v != v else f"{v:.6g}" for v in values.tolist()]
 
 
 def _cell_frame(frame: pd.DataFrame) -> pd.DataFrame:

@@ -73,7 +73,7 @@ def _auto_analytes(raw: RawTable, taken: set[str]) -> list[str]:
     for header in raw.cells.columns:
         if header in taken:
             continue
-        values, states = cellmod.parse_cells(raw.cells[header])
+        _, states = cellmod.parse_cells(raw.cells[header])
         filled = states != cellmod.MISSING
         if filled.sum() and (states[filled] != cellmod.NON_NUMERIC).mean() >= 0.9:
             chosen.append(header)
@@ -277,7 +277,9 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     n = len(raw.cells)
     rows = raw.rows
     decimal = config.ingest.decimal
-    numeric_cols = [raw.cells[s.column] for s in specs] + ([raw.cells[grade_col]] if grade_col else [])
+    numeric_cols = [raw.cells[s.column] for s in specs]
+    if grade_col:
+        numeric_cols.append(raw.cells[grade_col])
     if decimal == "auto":
         decimal = cellmod.detect_decimal(numeric_cols)
     stat = _Statuses(n, rows)
@@ -286,7 +288,8 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
 
     values, flags = {}, {}
     for spec in specs:
-        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal, config.ingest.censored)
+        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal,
+                                             config.ingest.censored)
         values[spec.name] = parsed * spec.factor
         flags[spec.name] = states
         _check_numeric(stat, states, raw.cells[spec.column].to_numpy(), spec.name, spec.column)
