@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 
 import pandas as pd
+
 from conftest import ROOT
 
 README = (ROOT / "README.md").read_text(encoding="utf-8")

@@ -30,7 +30,6 @@ of 20 or more away from the model's on most lots (another unit).
 
 from __future__ import annotations
 
-import dataclasses
 import textwrap
 import warnings
 from dataclasses import dataclass
@@ -497,8 +496,3 @@ def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
     for note in notes:
         lines += textwrap.wrap(note, width)
     return "\n".join(lines)
-
-
-def with_place_config(model: StyleModel, config: Config | None) -> Config:
-    """The config to place with: the given one, else the model's."""
-    return config if config is not None else dataclasses.replace(model.config)
