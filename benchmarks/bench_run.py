@@ -20,8 +20,10 @@ def main() -> None:
     work = Path(tempfile.mkdtemp(prefix="bench_run_"))
     run = run_cold(vinstrata("run"), cwd=work)
     report("vinstrata run (demo range + 50 new lots)", run)
-    for name, seconds in re.findall(r"^(.*) \.\.\. done \(([\d.]+) s\)$", run.err, re.M):
-        print(f"    {name:<60} {float(seconds):6.1f} s")
+    took = re.search(r"^took (.*)$", run.err, re.M)
+    for part in (took.group(1).split(", ") if took else []):
+        name, seconds = part.rsplit(" ", 2)[0], part.rsplit(" ", 2)[1]
+        print(f"    {name:<20} {float(seconds):6.1f} s")
     floor = run_cold([sys.executable, "-c", "import vinstrata.cli, umap, hdbscan, sklearn, "
                       "scipy.stats, pandas, matplotlib.backends.backend_pdf"])
     report("python start and library imports only", floor)

@@ -45,7 +45,11 @@ def _say(text: str) -> None:
 
 
 def _summary(rep: Reporter) -> None:
-    if rep.warnings and not rep.quiet:
+    if rep.quiet:
+        return
+    if rep.timings:
+        click.echo(rep.timing(), err=True)
+    if rep.warnings:
         click.echo(f"{len(rep.warnings)} warning(s):", err=True)
         for line in rep.warnings:
             click.echo(f"  - {line}", err=True)
@@ -140,11 +144,13 @@ def segment(state: State, lots: str, config_path: str | None, out_dir: str, shee
     rep = state.reporter()
     config = _config(config_path, seed)
     out = Path(out_dir)
-    with rep.stage("read and validate"):
+    with rep.stage("check: read and validate"):
         table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
+    pipeline.note_analytes(table, config, rep)
     pipeline.warn_rejections(table, rep)
-    with rep.stage("segment (transform, UMAP, HDBSCAN)"):
+    with rep.stage("segment: transform, UMAP, HDBSCAN"):
         model = pipeline.segment(table, config, rep)
+    pipeline.write_check(table, out)
     pipeline.write_segment(model, out)
     _say(pipeline.describe_styles(model))
     _summary(rep)
@@ -168,7 +174,7 @@ def profile(state: State, model_dir: str, config_path: str | None, out_dir: str)
     rep = state.reporter()
     model = load_model(model_dir)
     config = pipeline.model_config(model, load_config(config_path) if config_path else None)
-    with rep.stage("profile (bootstrap, effect sizes, thresholds)"):
+    with rep.stage("profile: effect sizes, bootstrap, thresholds"):
         profiles = pipeline.profile(model, config, rep)
     pipeline.write_profile(profiles, out_dir)
     for line in driver_summary(profiles, model, config.report.top_drivers):
@@ -199,12 +205,12 @@ def place(state: State, new: str, model_dir: str, config_path: str | None, out_d
     rep = state.reporter()
     model = load_model(model_dir)
     config = pipeline.model_config(model, load_config(config_path) if config_path else None)
-    with rep.stage("read and validate new lots"):
+    with rep.stage("check: read and validate the new lots"):
         table = pipeline.load_new(new, model, config, sheet=sheet)
-    pipeline.warn_rejections(table, rep)
-    with rep.stage("profile the model's styles (for driver cuts)"):
+    pipeline.warn_rejections(table, rep, where="placements.csv")
+    with rep.stage("profile: the model's styles, for their driver cuts"):
         profiles = pipeline.profile(model, config) if model.has_grade else None
-    with rep.stage("place"):
+    with rep.stage("place: new lots against their styles"):
         placements = pipeline.place(table, model, profiles, config, rep)
     pipeline.write_place(placements, out_dir)
     _say(describe(placements))
@@ -239,7 +245,7 @@ def brief(state: State, model_dir: str, profiles_dir: str | None, placements_dir
     else:
         profiles = pipeline.profile(model, config) if model.has_grade else None
     placements = pipeline.read_place(placements_dir) if placements_dir else None
-    with rep.stage("brief (PDF)"):
+    with rep.stage("brief: the PDF"):
         path = pipeline.brief(out_pdf, model, profiles, placements, config)
     _summary(rep)
     _say(f"wrote {path}")
@@ -269,7 +275,7 @@ def run(state: State, lots: str | None, new_lots: str | None, config_path: str |
     if lots is None:
         if new_lots is not None:
             raise InputError("--new needs LOTS too (the demo range brings its own new lots)")
-        with rep.stage("write the demo range (Quillory Vale Wine Co., invented)"):
+        with rep.stage("demo: write the range of the invented Quillory Vale Wine Co."):
             lots, new_lots = pipeline.demo_inputs(out / "input")
         config = _config(config_path, seed, fallback="demo")
     else:

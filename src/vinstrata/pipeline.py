@@ -41,13 +41,20 @@ def load(path: str | Path, config: Config, sheet: str | None = None,
     return load_lots(str(path), config, require_grade=require_grade)
 
 
-def warn_rejections(table: LotTable, rep: Reporter) -> None:
+def warn_rejections(table: LotTable, rep: Reporter, where: str = "row_status.csv") -> None:
     """One warning line for the rejected rows, by reason."""
     counts = quality.reason_counts(table.ids["status"])
     if len(counts):
         parts = ", ".join(f"{count} {reason}" for reason, count in counts.items())
         rep.warn(f"{table.source.name}: {int(counts.sum())} of {table.n_rows} rows rejected "
-                 f"({parts}); see row_status.csv")
+                 f"({parts}); see {where}")
+
+
+def note_analytes(table: LotTable, config: Config, rep: Reporter) -> None:
+    """Say which columns were taken as analytes when the config lets the engine find them."""
+    if not config.columns.analytes:
+        rep.line(f"  analytes found in {table.source.name} (no [columns] analytes in the "
+                 f"config): {', '.join(table.analytes)}")
 
 
 def write_check(table: LotTable, out: str | Path) -> list[Path]:
@@ -249,6 +256,7 @@ def run_all(lots: str | Path, new_lots: str | Path | None, config: Config, out: 
     with rep.stage("check: read and validate the lots"):
         table = load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
         write_check(table, out)
+    note_analytes(table, config, rep)
     warn_rejections(table, rep)
     with rep.stage("segment: transform, UMAP, HDBSCAN"):
         model = segment(table, config, rep)
@@ -264,7 +272,7 @@ def run_all(lots: str | Path, new_lots: str | Path | None, config: Config, out: 
     if new_lots is not None:
         with rep.stage("place: new lots against their styles"):
             new_table = load_new(new_lots, model, config, sheet=sheet)
-            warn_rejections(new_table, rep)
+            warn_rejections(new_table, rep, where="placements.csv")
             placements = place(new_table, model, profiles, config, rep)
             write_place(placements, out)
     with rep.stage("brief: the PDF"):

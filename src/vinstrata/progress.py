@@ -34,12 +34,15 @@ class Reporter:
 
     @contextmanager
     def stage(self, name: str) -> Iterator[None]:
-        """Time a stage; its line is printed when it ends, with the seconds taken."""
+        """A stage: its line is printed as it starts; its seconds go to :meth:`timing`."""
+        self.line(f"{name} ...")
         start = time.perf_counter()
         yield
-        took = time.perf_counter() - start
-        self.timings.append((name, took))
-        self.line(f"{name} ... done ({took:.1f} s)")
+        self.timings.append((name.split(":")[0], time.perf_counter() - start))
+
+    def timing(self) -> str:
+        """One line of the seconds each stage took, for the closing summary."""
+        return "took " + ", ".join(f"{name} {seconds:.1f} s" for name, seconds in self.timings)
 
     def bar(self, done: int, total: int, label: str) -> None:
         """A one-line bar redrawn in place, for loops that take a few seconds."""

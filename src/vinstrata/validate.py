@@ -68,15 +68,25 @@ def _find_column(name: str, index: dict[str, list[str]], headers: list[str], whe
     raise InputError(f"{where}: column '{name}' not found (columns: {shown})")
 
 
+_NOT_CHEMISTRY = {"vintage", "year", "millesime", "jahrgang", "annata", "anada", "date", "id",
+                  "row", "index", "tank", "batch", "block"}
+
+
 def _auto_analytes(raw: RawTable, taken: set[str]) -> list[str]:
+    """Numeric columns that can be chemistry: at least 90 % numbers, and not a year or an id."""
     chosen = []
     for header in raw.cells.columns:
-        if header in taken:
+        if header in taken or normalise_name(split_unit(header)[0]) in _NOT_CHEMISTRY:
             continue
-        _, states = cellmod.parse_cells(raw.cells[header])
+        values, states = cellmod.parse_cells(raw.cells[header])
         filled = states != cellmod.MISSING
-        if filled.sum() and (states[filled] != cellmod.NON_NUMERIC).mean() >= 0.9:
-            chosen.append(header)
+        if not filled.sum() or (states[filled] == cellmod.NON_NUMERIC).mean() > 0.1:
+            continue
+        known = values[np.isfinite(values)]
+        if known.size and np.all(known == np.round(known)) and np.all(
+                (known >= 1900) & (known <= 2100)):
+            continue  # whole numbers between 1900 and 2100: a year, not an analyte
+        chosen.append(header)
     return chosen
 
 
