@@ -9,20 +9,13 @@ Target (issue 5): placing 10,000 new lots under 10 s as a whole cold process.
 
 from __future__ import annotations
 
-import tempfile
-from pathlib import Path
-
-from cold import CONFIG, DEMO, report, run_cold, vinstrata
+from cold import DEMO, demo_model, report, run_cold, vinstrata
 
 
 def main() -> None:
     from vinstrata.demo import generate_demo
 
-    work = Path(tempfile.mkdtemp(prefix="bench_place_"))
-    setup = run_cold(vinstrata("-q", "segment", DEMO / "lots.csv", "--config", CONFIG,
-                               "--out", work / "seg"))
-    assert setup.code == 0, setup.err
-    model = work / "seg" / "model"
+    work, model = demo_model("bench_place_")
     new = generate_demo(10_000, seed=2027, bad_rows=0, n_new=0).lots.drop(columns=["grade"])
     new["lot"] = [f"NEW-{i:05d}" for i in range(len(new))]
     new.to_csv(work / "new10k.csv", index=False)

@@ -11,10 +11,8 @@ Target (issue 4): profiling the demo range with B = 2000 under 5 s on 2 cores.
 from __future__ import annotations
 
 import sys
-import tempfile
-from pathlib import Path
 
-from cold import CONFIG, DEMO, report, run_cold, vinstrata
+from cold import demo_model, report, run_cold, vinstrata
 
 LOOP = """
 import sys, numpy as np
@@ -41,11 +39,7 @@ for mask in groups:
 
 
 def main() -> None:
-    work = Path(tempfile.mkdtemp(prefix="bench_profile_"))
-    setup = run_cold(vinstrata("-q", "segment", DEMO / "lots.csv", "--config", CONFIG,
-                               "--out", work / "seg"))
-    assert setup.code == 0, setup.err
-    model = work / "seg" / "model"
+    work, model = demo_model("bench_profile_")
     ours = run_cold(vinstrata("-q", "profile", "--model", model, "--out", work / "prof"))
     report("vinstrata profile, B = 2000", ours)
     script = work / "loop.py"

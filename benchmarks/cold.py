@@ -47,6 +47,18 @@ def vinstrata(*args: object) -> list[str]:
     return [sys.executable, "-m", "vinstrata", *[str(a) for a in args]]
 
 
+def demo_model(prefix: str) -> tuple[Path, Path]:
+    """A fresh work folder and the demo range's model segmented into it (not timed)."""
+    import tempfile
+
+    work = Path(tempfile.mkdtemp(prefix=prefix))
+    setup = run_cold(vinstrata("-q", "segment", DEMO / "lots.csv", "--config", CONFIG,
+                               "--out", work / "seg"))
+    if setup.code != 0:
+        raise SystemExit(f"segmenting the demo range failed: {setup.err.strip()}")
+    return work, work / "seg" / "model"
+
+
 def report(name: str, timed: Timed) -> None:
     status = "" if timed.code == 0 else f"  (exit code {timed.code}: {timed.err.strip()[-200:]})"
     print(f"{name:<48} {timed.seconds:7.2f} s  peak {timed.peak_mb:7.0f} MB{status}")

@@ -579,8 +579,9 @@ METHODS = (
     "below 0.33 small, below 0.474 medium, above large). Its 95 % interval comes from a "
     "seeded bootstrap. Hedges' g is the standardised mean difference.",
     "A driver is an analyte whose top and bottom lots differ beyond chance: its Mann-Whitney "
-    "p-value, corrected for all the tests of the briefing by the Benjamini-Hochberg false "
-    "discovery rate, is below the set level and its delta interval excludes 0. A driver "
+    "p-value, corrected by the Benjamini-Hochberg false discovery rate over every style and "
+    "analyte of the briefing (the pooled rows form a family of their own), is below the set "
+    "level and its delta interval excludes 0. A driver "
     "describes an association in these lots; it is not proof that changing the analyte "
     "changes the grade.",
     "Thresholds: the Youden cut is the value that best separates top from bottom lots "
