@@ -107,3 +107,10 @@ def test_analytes_left_out_are_found_as_the_numeric_columns():
                            {"lot": "B", "score": "16", "vintage": "2022", "note": "fine",
                             "alcohol": "13.0", "ph": "3.5"}]), config)
     assert table.analytes == ("alcohol", "ph")
+
+
+def test_a_table_without_lot_ids_can_name_lots_by_row():
+    config = parse_config({"columns": {"lot_id": "@row", "grade": "", "analytes": ["ph"]}})
+    table = validate(_raw([{"ph": "3.3"}, {"ph": "3.4"}]), config)
+    assert list(table.ids["lot_id"]) == ["row2", "row3"]
+    assert (table.ids["status"] == "used").all()

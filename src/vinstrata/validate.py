@@ -44,6 +44,8 @@ from vinstrata.ingest import RawTable, read_table
 from vinstrata.lots import USED, AnalyteSpec, LotTable
 from vinstrata.units import factor_to_canonical
 
+ROW_IDS = "@row"  # [columns] lot_id for a table without lot ids: "row<N>" from the file row
+
 # --------------------------------------------------------------------------- column matching
 
 
@@ -264,7 +266,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     headers = list(raw.cells.columns)
     index = _header_index(headers)
     cols = config.columns
-    lot_col = _find_column(cols.lot_id, index, headers, name)
+    lot_col = "" if cols.lot_id == ROW_IDS else _find_column(cols.lot_id, index, headers, name)
     grade_col = ""
     if cols.grade:
         try:
@@ -273,7 +275,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
             if require_grade:
                 raise
     passthrough = {p: _find_column(p, index, headers, name) for p in cols.passthrough}
-    taken = {lot_col, grade_col, *passthrough.values()}
+    taken = {lot_col, grade_col, *passthrough.values()} - {""}
     analyte_names = list(cols.analytes) or _auto_analytes(raw, taken)
     if not analyte_names:
         raise InputError(f"{name}: no analyte columns (name them in [columns] analytes)")
@@ -293,7 +295,10 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     if decimal == "auto":
         decimal = cellmod.detect_decimal(numeric_cols)
     stat = _Statuses(n, rows)
-    lot_ids = raw.cells[lot_col].astype(str).str.strip()
+    if lot_col:
+        lot_ids = raw.cells[lot_col].astype(str).str.strip()
+    else:  # a table without lot ids: each lot is known by its file row
+        lot_ids = pd.Series([f"row{r}" for r in rows], dtype=object)
     _check_ids(stat, lot_ids, lot_col, config.ingest.duplicate_ids)
 
     values, flags = {}, {}
