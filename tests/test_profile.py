@@ -167,3 +167,13 @@ def test_per_style_quantile_bands(demo_model, mode):
         # bottom 20 % and top 20 % of each style's own grades (ties may round the shares)
         assert row["bottom"] == pytest.approx(0.2 * row["n_graded"], abs=0.05 * row["n_graded"])
         assert row["top"] == pytest.approx(0.2 * row["n_graded"], abs=0.05 * row["n_graded"])
+
+
+def test_profile_for_placing_keeps_every_style_row(demo_model, demo_profiles):
+    # placing skips the pooled rows and the cut intervals; drivers and cuts must not move
+    from vinstrata.profile import profile_styles
+
+    lean = profile_styles(demo_model, pooled=False, cut_intervals=False)
+    full = demo_profiles.drivers[demo_profiles.drivers["style"] != POOLED].reset_index(drop=True)
+    pd.testing.assert_frame_equal(lean.drivers.reset_index(drop=True), full)
+    pd.testing.assert_series_equal(lean.thresholds["cut"], demo_profiles.thresholds["cut"])

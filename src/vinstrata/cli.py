@@ -209,7 +209,8 @@ def place(state: State, new: str, model_dir: str, config_path: str | None, out_d
         table = pipeline.load_new(new, model, config, sheet=sheet)
     pipeline.warn_rejections(table, rep, where="placements.csv")
     with rep.stage("profile: the model's styles, for their driver cuts"):
-        profiles = pipeline.profile(model, config) if model.has_grade else None
+        profiles = (pipeline.profile(model, config, for_placing=True) if model.has_grade
+                    else None)
     with rep.stage("place: new lots against their styles"):
         placements = pipeline.place(table, model, profiles, config, rep)
     pipeline.write_place(placements, out_dir)

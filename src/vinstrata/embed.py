@@ -14,7 +14,8 @@ graph itself and hands the layout to umap-learn:
 * the layout is umap-learn's: spectral initialisation
   (``umap.spectral.spectral_layout``) and its stochastic gradient descent
   (``umap.layouts.optimize_layout_euclidean``), seeded, single-threaded so that
-  it is reproducible.
+  it is reproducible; the clustering space and the 2-D map, two independent
+  layouts of the same graph, run side by side in two threads.
 
 New lots are placed by UMAP's own first step for new points: the weighted mean
 of their neighbours' coordinates, with the same fuzzy memberships as weights
@@ -50,7 +51,9 @@ def nearest(reference: np.ndarray, k: int, query: np.ndarray | None = None) -> N
     lot is its own first neighbour, as umap-learn expects.
     """
     k = min(k, len(reference))
-    search = NearestNeighbors(n_neighbors=k, algorithm="auto").fit(reference)
+    # brute force: matrix products in chunks beat the trees in ten or so dimensions
+    # (measured: 28 s against 95 s for 100,000 lots, 10x for 6,000)
+    search = NearestNeighbors(n_neighbors=k, algorithm="brute").fit(reference)
     dist, idx = search.kneighbors(reference if query is None else query)
     if query is None:
         # a duplicate lot may come before the lot itself; put the lot first
@@ -62,6 +65,7 @@ def nearest(reference: np.ndarray, k: int, query: np.ndarray | None = None) -> N
             idx[i, 1 : j + 1] = idx[i, :j]
             dist[i, 1 : j + 1] = dist[i, :j]
             idx[i, 0], dist[i, 0] = i, 0.0
+        dist[:, 0] = 0.0  # the distance products can leave a tiny non-zero self distance
     return Neighbours(indices=idx, distances=dist)
 
 

@@ -101,11 +101,16 @@ PLACE_FILES = ("placements.csv", "placement_details.csv", "placement_analytes.cs
 
 
 def profile(model: StyleModel, config: Config | None = None,
-            rep: Reporter | None = None) -> Profiles:
-    """Profile the styles (see :func:`vinstrata.profile.profile_styles`)."""
+            rep: Reporter | None = None, for_placing: bool = False) -> Profiles:
+    """Profile the styles (see :func:`vinstrata.profile.profile_styles`).
+
+    ``for_placing`` skips what placing new lots does not use (the pooled rows,
+    the intervals of the cuts); the drivers and cuts are the same.
+    """
     from vinstrata.profile import profile_styles
 
-    return profile_styles(model, config, rep)
+    return profile_styles(model, config, rep, pooled=not for_placing,
+                          cut_intervals=not for_placing)
 
 
 def write_profile(profiles: Profiles, out: str | Path) -> list[Path]:

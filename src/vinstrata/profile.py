@@ -185,7 +185,7 @@ def _join(*parts: str) -> str:
 
 
 def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndarray],
-                weights: dict, config: Config) -> list[dict]:
+                weights: dict, config: Config, intervals: bool = True) -> list[dict]:
     prof = config.profile
     alpha = (1 - prof.ci_level) / 2
     lo_q, hi_q = prof.target_quantiles
@@ -210,8 +210,8 @@ def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndar
             cut, j = stats.youden_from_counts(sorted_.counts(ones_t, "top"),
                                               sorted_.counts(ones_b, "bottom"),
                                               sorted_.values, higher)
-            cuts = np.empty(prof.bootstrap)
-            for block in stats.blocks(prof.bootstrap, len(sorted_.values)):
+            cuts = np.full(prof.bootstrap, np.nan)
+            for block in stats.blocks(prof.bootstrap, len(sorted_.values)) if intervals else []:
                 cuts[block] = stats.youden_from_counts(
                     sorted_.counts(weights["top"][:, block], "top"),
                     sorted_.counts(weights["bottom"][:, block], "bottom"),
@@ -220,8 +220,8 @@ def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndar
             item.update({
                 "direction": "higher_better" if higher else "lower_better",
                 "cut": float(cut[0]), "youden_j": float(j[0]),
-                "cut_ci_low": float(np.quantile(cuts, alpha)),
-                "cut_ci_high": float(np.quantile(cuts, 1 - alpha)),
+                "cut_ci_low": float(np.quantile(cuts, alpha)) if intervals else np.nan,
+                "cut_ci_high": float(np.quantile(cuts, 1 - alpha)) if intervals else np.nan,
                 "auc": float(auc if higher else 1 - auc),
             })
         out.append(item)
@@ -306,7 +306,8 @@ def contrasts(drivers: pd.DataFrame, labels: dict[str, str]) -> pd.DataFrame:
 
 
 def profile_styles(model: StyleModel, config: Config | None = None,
-                   reporter: Reporter | None = None) -> Profiles:
+                   reporter: Reporter | None = None, pooled: bool = True,
+                   cut_intervals: bool = True) -> Profiles:
     """Profile every style of ``model`` against its grade bands.
 
     Parameters
@@ -315,18 +316,21 @@ def profile_styles(model: StyleModel, config: Config | None = None,
     config : Config, optional
         Profile and band settings; the model's own config when None.
     reporter : Reporter, optional
+    pooled, cut_intervals : bool
+        See :func:`profile_table`.
 
     Returns
     -------
     Profiles
     """
     return profile_table(model.values, model.flags, model.lots, model.styles, model.specs,
-                         config or model.config, reporter)
+                         config or model.config, reporter, pooled, cut_intervals)
 
 
 def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
                   styles: pd.DataFrame, specs: tuple[AnalyteSpec, ...], config: Config,
-                  reporter: Reporter | None = None) -> Profiles:
+                  reporter: Reporter | None = None, pooled: bool = True,
+                  cut_intervals: bool = True) -> Profiles:
     """Profile lots that already carry a style, from plain frames.
 
     Parameters
@@ -341,6 +345,11 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
         The analytes to profile (labels for the sentences).
     config : Config
     reporter : Reporter, optional
+    pooled : bool
+        Profile the pooled range too (style ``all``). Leaving it out changes no
+        style row: the pooled rows are drawn last and corrected as their own family.
+    cut_intervals : bool
+        Bootstrap the intervals of the cuts (placing new lots needs only the cuts).
 
     Returns
     -------
@@ -348,6 +357,8 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
     """
     rep = reporter or Reporter()
     groups = style_groups(lots, styles, config)
+    if not pooled:
+        groups = [g for g in groups if g.style != POOLED]
     grades = lots["grade"].to_numpy(dtype=float)
     analytes = [s.name for s in specs]
     observed = {a: _observed(values, flags, a) for a in analytes}
@@ -380,7 +391,7 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
         if group.style == POOLED:
             continue
         mine = drivers[drivers["style"] == group.style]
-        threshold_rows += _thresholds(group, mine, observed, weights, config)
+        threshold_rows += _thresholds(group, mine, observed, weights, config, cut_intervals)
     thresholds = pd.DataFrame(threshold_rows, columns=list(THRESHOLD_COLUMNS))
     trusted = dict(zip(styles["style"], styles["trusted"]))
     thresholds["trusted"] = thresholds["style"].map(trusted).astype(bool)

@@ -24,9 +24,11 @@
    count as ties, and a tie goes to fewer unassigned lots, then to the larger
    size;
 6. lots that fit no style: UMAP also pulls lots unlike any style into the
-   nearest cluster, so the judgement is made in the scaled chemistry, by the
-   outlier score of :mod:`vinstrata.typicality` (a robust Mahalanobis distance
-   to the style). HDBSCAN noise lots and lots scoring above
+   nearest cluster, or gathers lots of random chemistry into clusters of their
+   own. A group spread wider than the range itself (:func:`drop_diffuse`) is
+   no style and is dissolved; and typicality is judged in the scaled chemistry,
+   by the outlier score of :mod:`vinstrata.typicality` (a robust Mahalanobis
+   distance to the style). HDBSCAN noise lots and lots scoring above
    ``segment.outlier_cutoff`` are ``unassigned``; they keep their nearest style
    and their soft membership to every style;
 7. styles get ids S1 ... Sk, largest first, names from the robust z of their
