@@ -45,6 +45,7 @@ from vinstrata.report.layout import (
 
 MAX_TABLE_ROWS = 48
 MAX_LABELLED = 60
+LABEL_ALL = 20
 
 
 @dataclass(frozen=True)
@@ -450,7 +451,7 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
     placements = data.placements
     fig = new_page("New lots against the range",
                    "Grey: historical lots. Coloured: new lots in their style; black ×: fits no "
-                   "style; ringed: atypical.")
+                   "style; ringed: atypical (named; the next page lists every new lot).")
     if placements is None or not len(placements.details):
         text_block(fig, 0.88, ["No new lot could be placed: every row was rejected (see "
                                "placements.csv for the reasons)."], size=10)
@@ -472,9 +473,10 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
         ax.scatter(x[mask], y[mask], s=22, c=data.colour(sid), edgecolors=INK, linewidths=0.4)
     ax.scatter(x[atypical], y[atypical], s=90, facecolors="none", edgecolors=WARN_COLOUR,
                linewidths=1.0)
-    label = np.ones(len(details), dtype=bool) if len(details) <= MAX_LABELLED else atypical
+    # with many new lots, names would pile up: label the atypical ones, the table has the rest
+    label = np.ones(len(details), dtype=bool) if len(details) <= LABEL_ALL else atypical
     for k in np.flatnonzero(label)[:MAX_LABELLED]:
-        ax.annotate(str(details["lot_id"].iloc[k]), (x[k], y[k]), fontsize=5, xytext=(3, 3),
+        ax.annotate(str(details["lot_id"].iloc[k]), (x[k], y[k]), fontsize=6, xytext=(4, 4),
                     textcoords="offset points", color=INK)
     n_atyp = int(used["atypical"].astype(bool).sum())
     text_block(fig, 0.25, [
