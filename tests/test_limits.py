@@ -371,3 +371,13 @@ def test_default_toml_limits_match_markets(market):
     assert table == dataclasses.asdict(lim.MARKETS[market])
     config = parse_config(doc, "default.toml")
     assert lim.limit_set(dataclasses.replace(config.limits, market=market)) == lim.MARKETS[market]
+
+
+def test_colour_column_must_be_a_passthrough_column():
+    from vinstrata.config import parse_config
+    from vinstrata.errors import InputError
+
+    with pytest.raises(InputError, match=r"limits\.colour_column"):
+        parse_config({"columns": {"lot_id": "lot"}, "limits": {"colour_column": "colour"}})
+    parse_config({"columns": {"lot_id": "lot", "passthrough": ["colour"]},
+                  "limits": {"colour_column": "colour"}})

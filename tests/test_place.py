@@ -170,3 +170,14 @@ def test_config_for_other_analytes_is_refused_naming_the_difference(demo_model_d
     assert result.code == 2
     assert result.err.count("\n") == 1
     assert "differ from the model" in result.err and "ph" in result.err
+
+
+def test_atypical_line_follows_the_placing_config(demo_model, demo_profiles):
+    import dataclasses
+
+    table = pipeline.load_new(DEMO / "new_lots.csv", demo_model, demo_model.config)
+    strict = dataclasses.replace(demo_model.config, place=dataclasses.replace(
+        demo_model.config.place, atypical_percentile=60.0))
+    default = place_lots(table, demo_model, demo_profiles).lots["atypical"].astype(bool)
+    more = place_lots(table, demo_model, demo_profiles, strict).lots["atypical"].astype(bool)
+    assert more.sum() > default.sum() and (more | ~default).all()

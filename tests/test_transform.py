@@ -114,3 +114,11 @@ def test_a_table_without_lot_ids_can_name_lots_by_row():
     table = validate(_raw([{"ph": "3.3"}, {"ph": "3.4"}]), config)
     assert list(table.ids["lot_id"]) == ["row2", "row3"]
     assert (table.ids["status"] == "used").all()
+
+
+def test_analytes_are_found_in_a_decimal_comma_table():
+    config = parse_config({"columns": {"lot_id": "lot", "grade": ""}})
+    table = validate(_raw([{"lot": "A", "alcohol": "12,5", "ph": "3,31"},
+                           {"lot": "B", "alcohol": "13,0", "ph": "3,45"}]), config)
+    assert table.analytes == ("alcohol", "ph")
+    assert table.values["ph"].tolist() == [3.31, 3.45]

@@ -9,22 +9,34 @@ objects; the CLI is a thin layer over them::
     config = load_config("configs/demo.toml")
     lots = load_lots("demo_data/lots.csv", config)
     model = fit_styles(lots, config)
+
+The names below are imported on first use, so that ``vinstrata --help`` or
+``vinstrata demo`` do not pay for scikit-learn and scipy.
 """
 
+from __future__ import annotations
+
+from importlib import import_module
 from importlib.metadata import PackageNotFoundError, version
+from typing import Any
 
 try:
     __version__ = version("vinstrata")
 except PackageNotFoundError:  # pragma: no cover - running from a source tree
     __version__ = "0.0.0"
 
-from vinstrata.config import Config, load_config, packaged_config
-from vinstrata.errors import InputError
-from vinstrata.model import StyleModel, load_model, save_model
-from vinstrata.segment import fit_styles
-from vinstrata.validate import load_lots
+_API = {
+    "Config": "vinstrata.config", "load_config": "vinstrata.config",
+    "packaged_config": "vinstrata.config", "InputError": "vinstrata.errors",
+    "StyleModel": "vinstrata.model", "load_model": "vinstrata.model",
+    "save_model": "vinstrata.model", "fit_styles": "vinstrata.segment",
+    "load_lots": "vinstrata.validate",
+}
 
-__all__ = [
-    "Config", "InputError", "StyleModel", "__version__", "fit_styles", "load_config",
-    "load_lots", "load_model", "packaged_config", "save_model",
-]
+__all__ = [*_API, "__version__"]
+
+
+def __getattr__(name: str) -> Any:
+    if name in _API:
+        return getattr(import_module(_API[name]), name)
+    raise AttributeError(f"module 'vinstrata' has no attribute {name!r}")

@@ -17,6 +17,7 @@ from __future__ import annotations
 import numpy as np
 
 from vinstrata.config import Bands
+from vinstrata.lots import UNASSIGNED
 
 
 def band_of(grades: np.ndarray, cuts: np.ndarray | tuple[float, ...]) -> np.ndarray:
@@ -59,6 +60,25 @@ def assign_bands(grades: np.ndarray, styles: np.ndarray, settings: Bands) -> np.
             # a lot exactly on the lower quantile belongs to the band above, as for global cuts
             out[mask] = band_of(grades[mask], cuts)
     return out
+
+
+def lot_bands(grades: np.ndarray, style: np.ndarray, nearest: np.ndarray, settings: Bands,
+              include_unassigned: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Each lot's home style and its band: the one labelling every stage shares.
+
+    The home style is the lot's style, or for an unassigned lot its nearest style
+    when profiles include unassigned lots (``profile.include_unassigned``);
+    otherwise unassigned lots stay a group of their own.
+
+    Returns
+    -------
+    home : ndarray of str
+    bands : ndarray of int
+    """
+    style = np.asarray(style, dtype=object)
+    home = np.where(style == UNASSIGNED, np.asarray(nearest, dtype=object), style) \
+        if include_unassigned else style
+    return home, assign_bands(grades, home, settings)
 
 
 def band_counts(bands: np.ndarray, n_bands: int) -> np.ndarray:

@@ -23,10 +23,9 @@ CONFIG_HELP = "TOML config (configs/default.toml documents every key)."
 
 
 class State:
-    """Options shared by every command."""
+    """Options shared by every command (``--debug`` is read by :func:`main` itself)."""
 
-    def __init__(self, debug: bool, quiet: bool) -> None:
-        self.debug = debug
+    def __init__(self, quiet: bool) -> None:
         self.quiet = quiet
 
     def reporter(self) -> Reporter:
@@ -63,7 +62,7 @@ def _summary(rep: Reporter) -> None:
 def cli(ctx: click.Context, debug: bool, quiet: bool) -> None:
     """Style segmentation, within-style quality drivers, new-lot placement and
     buyer briefings for wine lot tables."""
-    ctx.obj = State(debug=debug, quiet=quiet)
+    ctx.obj = State(quiet=quiet)
 
 
 # --------------------------------------------------------------------------- demo
@@ -114,13 +113,14 @@ def demo(out_dir: str, n_lots: int, seed: int, noise_share: float, blank_share: 
 def check(state: State, lots: str, config_path: str | None, sheet: str | None,
           out_dir: str | None) -> None:
     """Validate a lot table and report its data quality."""
-    from vinstrata import pipeline
+    from vinstrata import pipeline, quality
 
+    rep = state.reporter()
     config = _config(config_path)
     out = Path(out_dir or f"check_{Path(lots).stem}")
+    # no stage line: check is quick, and a refused file then gets its one error line alone
     table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
-    from vinstrata import quality
-
+    pipeline.note_analytes(table, config, rep)
     _say(quality.describe(table))
     pipeline.write_check(table, out)
     _say(f"wrote {out}/")
@@ -152,7 +152,7 @@ def segment(state: State, lots: str, config_path: str | None, out_dir: str, shee
         model = pipeline.segment(table, config, rep)
     pipeline.write_check(table, out)
     pipeline.write_segment(model, out)
-    _say(pipeline.describe_styles(model))
+    _say(pipeline.styles_text(model))
     _summary(rep)
     _say(f"wrote {out}/ (model in {out / 'model'})")
 
@@ -282,7 +282,7 @@ def run(state: State, lots: str | None, new_lots: str | None, config_path: str |
     else:
         config = _config(config_path, seed)
     result = pipeline.run_all(lots, new_lots, config, out, rep, sheet=sheet)
-    _say(pipeline.describe_styles(result.model))
+    _say(pipeline.styles_text(result.model))
     if result.placements is not None:
         from vinstrata.place import describe
 

@@ -490,6 +490,11 @@ def _cross_checks(source: str, config: Config) -> None:
         seen.add(name)
     if not cols.lot_id.strip():
         raise _fail(source, "columns.lot_id", "a column name", cols.lot_id)
+    colour = config.limits.colour_column
+    if colour and colour not in cols.passthrough:
+        # the colour reaches the screening only as a passthrough column
+        raise _fail(source, "limits.colour_column", "one of the [columns] passthrough names "
+                    f"({', '.join(cols.passthrough) or 'none given'})", colour)
 
 
 def parse_config(raw: Mapping[str, Any], source: str = "<config>") -> Config:

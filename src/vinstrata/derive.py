@@ -20,6 +20,7 @@ import dataclasses
 import numpy as np
 
 from vinstrata.analytes import KINDS_BY_KEY
+from vinstrata.cells import MISSING
 from vinstrata.config import Derived
 from vinstrata.errors import InputError
 from vinstrata.lots import AnalyteSpec, LotTable
@@ -80,7 +81,7 @@ def add_derived(table: LotTable, settings: Derived) -> LotTable:
         else:
             derived = a + b * ACETIC_TO_TARTARIC
         values[name] = derived
-        flags[name] = np.where(np.isfinite(derived), DERIVED_STATE, "missing")
+        flags[name] = np.where(np.isfinite(derived), DERIVED_STATE, MISSING)
         specs.append(_derived_spec(name))
     return dataclasses.replace(table, values=values, flags=flags, specs=tuple(specs))
 

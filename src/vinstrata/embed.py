@@ -17,10 +17,12 @@ graph itself and hands the layout to umap-learn:
   it is reproducible; the clustering space and the 2-D map, two independent
   layouts of the same graph, run side by side in two threads.
 
-New lots are placed by UMAP's own first step for new points: the weighted mean
-of their neighbours' coordinates, with the same fuzzy memberships as weights
-(umap-learn's ``transform`` starts from this and then refines; the engine
-keeps the start, which stays inside the region of the neighbours).
+New lots are placed the way umap-learn's ``transform`` starts new points, as the
+weighted mean of their neighbours' coordinates, and kept there (umap-learn then
+refines the start; the engine does not, so a new lot stays inside the region
+of its neighbours). The weights are the fuzzy memberships of the engine's own
+graph (local connectivity 1, the graph's k); umap-learn's start uses local
+connectivity 0, which weights the nearest neighbour a little less.
 """
 
 from __future__ import annotations
@@ -239,8 +241,9 @@ def interpolate(neighbours: Neighbours, coordinates: np.ndarray) -> np.ndarray:
     """Coordinates of new lots: membership-weighted mean of their neighbours' coordinates.
 
     ``neighbours`` are the new lots' nearest training lots (in the scaled
-    chemistry); weights are UMAP's fuzzy memberships computed for the new
-    lots, as umap-learn's ``transform`` initialises new points.
+    chemistry); weights are the fuzzy memberships of the engine's graph
+    computed for the new lots (see the module notes for how this differs from
+    umap-learn's own start).
     """
     sigmas, rhos = smooth_knn_dist(neighbours.distances, float(neighbours.indices.shape[1]))
     weights = memberships(neighbours, sigmas, rhos, self_loops=True).astype(np.float64)

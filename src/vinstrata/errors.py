@@ -16,13 +16,3 @@ class InputError(Exception):
 
     def __init__(self, message: str) -> None:
         super().__init__(" ".join(str(message).split()))
-
-
-def where(path: object, row: int | None = None, column: str | None = None) -> str:
-    """Format a location as ``file, row N, column 'c'`` for error messages."""
-    parts = [str(path)]
-    if row is not None:
-        parts.append(f"row {row}")
-    if column is not None:
-        parts.append(f"column '{column}'")
-    return ", ".join(parts)

@@ -68,15 +68,6 @@ class RawTable:
     blank_rows: int = 0
 
 
-def sha256_of(path: Path) -> str:
-    """Hex SHA-256 of a file, for provenance."""
-    digest = hashlib.sha256()
-    with path.open("rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def read_table(path: str | Path, sheet: str = "", delimiter: str = "auto") -> RawTable:
     """Read a lot file into text cells.
 
@@ -106,28 +97,27 @@ def read_table(path: str | Path, sheet: str = "", delimiter: str = "auto") -> Ra
     if path.is_dir():
         raise InputError(f"{path}: is a folder, not a lot file")
     try:
-        head = path.open("rb").read(8)
+        data = path.read_bytes()  # once: hashed, sniffed and parsed from memory
     except OSError as exc:
         raise InputError(f"{path}: cannot be read ({exc.strerror})") from None
-    if not head:
+    if not data:
         raise InputError(f"{path}: the file is empty")
-    digest = sha256_of(path)
     suffix = path.suffix.lower()
-    if head.startswith(b"PAR1") or suffix == ".parquet":
-        frame, lines, info = _read_parquet(path)
-    elif head.startswith(b"PK\x03\x04") or suffix in (".xlsx", ".xlsm"):
-        frame, lines, info = _read_excel(path, sheet)
+    if data.startswith(b"PAR1") or suffix == ".parquet":
+        frame, lines, info = _read_parquet(path, data)
+    elif data.startswith(b"PK\x03\x04") or suffix in (".xlsx", ".xlsm"):
+        frame, lines, info = _read_excel(path, data, sheet)
     else:
-        frame, lines, info = _read_text(path, delimiter)
-    source = Source(path=str(path), name=path.name, sha256=digest, **info)
+        frame, lines, info = _read_text(path, data, delimiter)
+    source = Source(path=str(path), name=path.name, sha256=hashlib.sha256(data).hexdigest(),
+                    **info)
     return _finish(frame, lines, source)
 
 
 # --------------------------------------------------------------------------- text files
 
 
-def _decode(path: Path) -> tuple[str, str]:
-    data = path.read_bytes()
+def _decode(path: Path, data: bytes) -> tuple[str, str]:
     if b"\x00" in data[:65536]:
         raise InputError(f"{path}: holds binary data, not a text table (csv, tsv, xlsx, parquet)")
     for encoding in ("utf-8-sig", "cp1252", "latin-1"):
@@ -153,7 +143,7 @@ def detect_delimiter(text: str) -> str:
     fields. Decimal commas in the data therefore cannot fool the choice: they
     split data lines, not the header.
     """
-    lines = [ln for ln in text.splitlines()[:50] if ln.strip()]
+    lines = [ln for ln in text[:200_000].splitlines()[:50] if ln.strip()]
     if not lines:
         return ","
     best, best_fields = ",", 1
@@ -168,8 +158,9 @@ def detect_delimiter(text: str) -> str:
     return best
 
 
-def _read_text(path: Path, delimiter: str) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
-    text, encoding = _decode(path)
+def _read_text(path: Path, data: bytes, delimiter: str
+               ) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
+    text, encoding = _decode(path, data)
     if not text.strip():
         raise InputError(f"{path}: the file is empty")
     delim = {"tab": "\t"}.get(delimiter, delimiter)
@@ -236,12 +227,13 @@ def _cell_text(value: object) -> str:
     return str(value)
 
 
-def _read_excel(path: Path, sheet: str) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
+def _read_excel(path: Path, data: bytes, sheet: str
+                ) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
     import openpyxl
 
     try:
         # from bytes, so that a workbook under another suffix is read all the same
-        book = openpyxl.load_workbook(io.BytesIO(path.read_bytes()), read_only=True,
+        book = openpyxl.load_workbook(io.BytesIO(data), read_only=True,
                                       data_only=True)
     except Exception as exc:  # a damaged workbook can fail in zipfile, zlib or the XML parser
         raise InputError(f"{path}: not a readable .xlsx workbook ({exc.__class__.__name__})"
@@ -274,11 +266,11 @@ def _read_excel(path: Path, sheet: str) -> tuple[pd.DataFrame, list[int], dict[s
     return frame, [n for n, _ in numbered[1:]], {"format": "xlsx", "sheet": used_sheet}
 
 
-def _read_parquet(path: Path) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
+def _read_parquet(path: Path, data: bytes) -> tuple[pd.DataFrame, list[int], dict[str, str]]:
     import pyarrow.parquet as pq
 
     try:
-        table = pq.read_table(path)
+        table = pq.read_table(io.BytesIO(data))
         columns = {str(name): [_cell_text(v) for v in table.column(i).to_pylist()]
                    for i, name in enumerate(table.column_names)}
     except Exception as exc:  # damaged files fail deep inside pyarrow, in many ways

@@ -6,15 +6,16 @@ builds them, every later stage reads them.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
-from vinstrata.analytes import KINDS_BY_KEY, Kind
+from vinstrata.cells import MISSING
 from vinstrata.ingest import Source
 
-USED = "used"
+USED = "used"  # the status of a row that goes on
+UNASSIGNED = "unassigned"  # the style of a lot that fits no style
 
 
 @dataclass(frozen=True)
@@ -53,10 +54,6 @@ class AnalyteSpec:
     bounds: tuple[float, float] | None
     concentration: bool
     derived: bool = False
-
-    @property
-    def catalogue(self) -> Kind | None:
-        return KINDS_BY_KEY.get(self.kind)
 
     def to_dict(self) -> dict[str, object]:
         return {
@@ -112,7 +109,6 @@ class LotTable:
     blank_rows: int = 0
     decimal: str = "."
     has_grade: bool = False
-    notes: tuple[str, ...] = field(default_factory=tuple)
 
     @property
     def analytes(self) -> tuple[str, ...]:
@@ -126,3 +122,14 @@ class LotTable:
     @property
     def n_rows(self) -> int:
         return len(self.ids)
+
+
+def observed(values: pd.DataFrame, flags: pd.DataFrame, analyte: str) -> np.ndarray:
+    """An analyte's measured (or censored) values, NaN where the cell was missing.
+
+    Missing cells are imputed for the styles only; every statistic reads them
+    through this function, so that imputed values never count as measured.
+    """
+    out = values[analyte].to_numpy(dtype=float).copy()
+    out[(flags[analyte] == MISSING).to_numpy()] = np.nan
+    return out

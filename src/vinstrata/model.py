@@ -43,11 +43,10 @@ import pandas as pd
 from vinstrata.config import Config, parse_config
 from vinstrata.errors import InputError
 from vinstrata.ingest import Source
-from vinstrata.lots import AnalyteSpec
+from vinstrata.lots import UNASSIGNED, USED, AnalyteSpec  # noqa: F401 - UNASSIGNED re-exported
 from vinstrata.transform import ChemistryScaler
 
 FORMAT_VERSION = 1
-UNASSIGNED = "unassigned"
 
 
 def software_versions() -> dict[str, str]:
@@ -212,7 +211,7 @@ def load_model(folder: str | Path) -> StyleModel:
         if len(parts[name]) != n:
             raise InputError(f"{folder}: model file {name} holds {len(parts[name])} lots, "
                              f"lots.parquet {n}")
-    if len(parts["extra"]) != len(parts["rows"]) or (parts["rows"]["status"] == "used").sum() != n:
+    if len(parts["extra"]) != len(parts["rows"]) or (parts["rows"]["status"] == USED).sum() != n:
         raise InputError(f"{folder}: model files rows.parquet, extra.parquet and lots.parquet "
                          "disagree")
     parts["extra"] = parts["extra"].astype(object)

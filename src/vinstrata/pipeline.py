@@ -6,6 +6,7 @@ function writes one command's contract files.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -16,7 +17,7 @@ from vinstrata import quality
 from vinstrata.config import Config
 from vinstrata.errors import InputError
 from vinstrata.ingest import read_table
-from vinstrata.lots import LotTable
+from vinstrata.lots import UNASSIGNED, LotTable
 from vinstrata.model import StyleModel, save_model
 from vinstrata.progress import Reporter
 from vinstrata.segment import fit_styles, lot_styles, style_table
@@ -30,15 +31,17 @@ if TYPE_CHECKING:
 CHECK_FILES = ("quality_summary.csv", "quality_analytes.csv", "row_status.csv")
 
 
+def _with_sheet(config: Config, sheet: str | None) -> Config:
+    """The config with ``ingest.sheet`` replaced by a ``--sheet`` given on the command line."""
+    if sheet is None:
+        return config
+    return dataclasses.replace(config, ingest=dataclasses.replace(config.ingest, sheet=sheet))
+
+
 def load(path: str | Path, config: Config, sheet: str | None = None,
          require_grade: bool = True) -> LotTable:
     """Read and validate a lot file (``sheet`` overrides ``ingest.sheet``)."""
-    if sheet is not None:
-        import dataclasses
-
-        config = dataclasses.replace(config, ingest=dataclasses.replace(config.ingest,
-                                                                         sheet=sheet))
-    return load_lots(str(path), config, require_grade=require_grade)
+    return load_lots(str(path), _with_sheet(config, sheet), require_grade=require_grade)
 
 
 def warn_rejections(table: LotTable, rep: Reporter, where: str = "row_status.csv") -> None:
@@ -84,10 +87,10 @@ def write_segment(model: StyleModel, out: str | Path) -> list[Path]:
     ]
 
 
-def describe_styles(model: StyleModel) -> str:
+def styles_text(model: StyleModel) -> str:
     """The styles as terminal lines."""
     lines = [f"{len(model.styles)} style(s) from {len(model.lots)} lots "
-             f"({int((model.lots['style'] == 'unassigned').sum())} unassigned):"]
+             f"({int((model.lots['style'] == UNASSIGNED).sum())} unassigned):"]
     for row in model.styles.itertuples():
         mark = "" if row.trusted else "  [untrusted]"
         lines.append(f"  {row.style:<4} {row.n_lots:>6} lots  {row.style_name}{mark}")
@@ -124,18 +127,12 @@ def write_profile(profiles: Profiles, out: str | Path) -> list[Path]:
 def load_new(path: str | Path, model: StyleModel, config: Config,
              sheet: str | None = None) -> LotTable:
     """Read new lots through the training front door, refusing a file that does not fit."""
-    from vinstrata.place import check_columns, check_units
+    from vinstrata.place import check_columns
 
-    if sheet is not None:
-        import dataclasses
-
-        config = dataclasses.replace(config, ingest=dataclasses.replace(config.ingest,
-                                                                         sheet=sheet))
+    config = _with_sheet(config, sheet)
     raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter)
     check_columns(raw, model, config)
-    table = validate(raw, config, require_grade=False)
-    check_units(table, model)
-    return table
+    return validate(raw, config, require_grade=False)
 
 
 def place(table: LotTable, model: StyleModel, profiles: Profiles | None,

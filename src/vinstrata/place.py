@@ -5,7 +5,7 @@
 and, per used lot:
 
 * its clustering-space position: the membership-weighted mean of its nearest
-  training lots' positions, UMAP's own start for new points
+  training lots' positions, the way UMAP starts new points
   (:func:`vinstrata.embed.interpolate`); the same for its place on the 2-D map;
 * its style and membership strength from HDBSCAN's approximate prediction
   against the stored model (rebuilt deterministically), or ``unassigned``
@@ -39,18 +39,18 @@ import pandas as pd
 
 from vinstrata import embed
 from vinstrata.analytes import normalise_name, split_unit
-from vinstrata.bands import assign_bands
-from vinstrata.cells import MISSING
+from vinstrata.bands import lot_bands
 from vinstrata.config import Config
 from vinstrata.errors import InputError
 from vinstrata.ingest import RawTable
 from vinstrata.limits import CAUTION, Flag, normalise_colour, screen
-from vinstrata.lots import USED, LotTable
+from vinstrata.lots import USED, LotTable, observed
 from vinstrata.model import UNASSIGNED, StyleModel
 from vinstrata.profile import Profiles
 from vinstrata.progress import Reporter
 from vinstrata.segment import rebuild_clusterer, scale_chemistry, style_shapes
 from vinstrata.units import normalise_unit
+from vinstrata.validate import header_index, numeric_columns
 
 PLACEMENT_COLUMNS = ("lot_id", "status", "style", "style_name", "membership", "atypical",
                      "outlier_score", "nearest_lots", "indicative_band", "share_top", "flags")
@@ -88,31 +88,23 @@ class Placements:
 def check_columns(raw: RawTable, model: StyleModel, config: Config) -> None:
     """Refuse a file whose analyte columns differ from the model's, in one line."""
     headers = list(raw.cells.columns)
-    keys = {normalise_name(h) for h in headers} | {normalise_name(split_unit(h)[0])
-                                                   for h in headers}
+    keys = set(header_index(headers))
     wanted = [s for s in model.specs if not s.derived]
     missing = [s.name for s in wanted if normalise_name(s.name) not in keys
                and normalise_name(split_unit(s.column)[0]) not in keys]
+    if not missing:
+        return
     known = {normalise_name(s.name) for s in model.specs} | {
         normalise_name(split_unit(s.column)[0]) for s in model.specs}
     cols = config.columns
-    others = {normalise_name(n) for n in (cols.lot_id, cols.grade, *cols.passthrough) if n}
-    if config.limits.colour_column:
-        others.add(normalise_name(config.limits.colour_column))
-    unexpected = []
-    for header in headers:
-        key = normalise_name(split_unit(header)[0])
-        if key in known or normalise_name(header) in known or key in others:
-            continue
-        text = raw.cells[header].astype(str).str.strip()
-        numeric = pd.to_numeric(text.str.replace(",", ".", regex=False), errors="coerce")
-        filled = text != ""
-        if filled.any() and numeric[filled].notna().mean() >= 0.9:
-            unexpected.append(header)
-    if missing:
-        extra = f"; unexpected: {', '.join(unexpected)}" if unexpected else ""
-        raise InputError(f"{raw.source.name}: analytes do not match the model: missing "
-                         f"{', '.join(missing)}{extra}")
+    others = {normalise_name(n) for n in (cols.lot_id, cols.grade, *cols.passthrough,
+                                          config.limits.colour_column) if n}
+    taken = {h for h in headers if normalise_name(split_unit(h)[0]) in known | others
+             or normalise_name(h) in known}
+    unexpected = numeric_columns(raw, taken, config.ingest.decimal)
+    extra = f"; unexpected: {', '.join(unexpected)}" if unexpected else ""
+    raise InputError(f"{raw.source.name}: analytes do not match the model: missing "
+                     f"{', '.join(missing)}{extra}")
 
 
 def check_units(table: LotTable, model: StyleModel) -> None:
@@ -192,7 +184,15 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
         space = scaled.astype(np.float32)
     map_xy = embed.interpolate(neighbours, model.map2d)
 
-    style_index, strength, nearest_index = _predict(model, space)
+    # style and strength as HDBSCAN predicts them; a lot without a style gets its
+    # nearest one and its soft membership to it, as in the segmentation
+    style_index, strength, clusterer = _predict(model, space)
+    nearest_index = style_index.copy()
+    loose = np.flatnonzero(style_index < 0)
+    if loose.size:
+        soft = _soft(model, clusterer, space[loose])
+        nearest_index[loose] = np.argmax(soft, axis=1)
+        strength[loose] = soft[np.arange(loose.size), nearest_index[loose]]
     shapes = style_shapes(model)
     scores = np.empty(n)
     for s, sid in enumerate(style_ids):
@@ -200,8 +200,14 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
         if mask.any():
             scores[mask] = shapes[sid].score(scaled[mask])
     fits_none = scores > float(model.outliers["cutoff"])
+    turned = np.flatnonzero(fits_none & (style_index >= 0))
+    if turned.size:  # styled by HDBSCAN but unlike its style's chemistry: unassigned too
+        soft = _soft(model, clusterer, space[turned])
+        strength[turned] = soft[np.arange(turned.size), nearest_index[turned]]
     style_index = np.where(fits_none, -1, style_index)
-    atypical = (scores > float(model.outliers["atypical_score"])) | (style_index < 0)
+    # the atypical line is the training lots' own percentile, under this run's config
+    line = float(np.percentile(model.lots["outlier_score"], config.place.atypical_percentile))
+    atypical = (scores > line) | (style_index < 0)
     style = np.array([style_ids[s] if s >= 0 else UNASSIGNED for s in style_index], dtype=object)
     home = np.array([style_ids[s] for s in nearest_index], dtype=object)
 
@@ -278,38 +284,41 @@ def _empty_lots(table: LotTable, model: StyleModel) -> pd.DataFrame:
     return out
 
 
-def _predict(model: StyleModel, space: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Style index (-1 noise), membership strength and nearest style index per lot."""
+def _predict(model: StyleModel, space: np.ndarray) -> tuple[np.ndarray, np.ndarray, object]:
+    """Style index (-1 for HDBSCAN noise) and membership strength per lot, and the clusterer."""
     n = len(space)
-    n_styles = len(model.style_ids)
     if model.params.get("one_style"):
-        return np.zeros(n, dtype=int), np.ones(n), np.zeros(n, dtype=int)
+        return np.zeros(n, dtype=int), np.ones(n), None
     import hdbscan
 
     clusterer = rebuild_clusterer(model)
-    cluster_styles = model.params["cluster_styles"]
     position = {sid: s for s, sid in enumerate(model.style_ids)}
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         clusters, strength = hdbscan.approximate_predict(clusterer, space)
-        style_index = np.array([position.get(cluster_styles[c], -1) if c >= 0 else -1
-                                for c in clusters], dtype=int)
-        membership = np.asarray(strength, dtype=float).copy()
-        nearest = style_index.copy()
-        loose = np.flatnonzero(style_index < 0)
-        if loose.size:
-            # soft membership only where a lot has no style: it names the nearest one
-            vectors = np.asarray(hdbscan.membership_vector(clusterer, space[loose]), dtype=float)
-            vectors = vectors.reshape(loose.size, -1)
-            soft = np.zeros((loose.size, n_styles))
-            for c, sid in enumerate(cluster_styles):
-                if sid in position:
-                    soft[:, position[sid]] += vectors[:, c]
-            best = np.argmax(soft, axis=1)
-            nearest[loose] = best
-            membership[loose] = soft[np.arange(loose.size), best] / np.maximum(
-                soft.sum(axis=1), 1e-12)
-    return style_index, membership, nearest
+    cluster_styles = model.params["cluster_styles"]
+    style_index = np.array([position.get(cluster_styles[c], -1) if c >= 0 else -1
+                            for c in clusters], dtype=int)
+    return style_index, np.asarray(strength, dtype=float).copy(), clusterer
+
+
+def _soft(model: StyleModel, clusterer: object, points: np.ndarray) -> np.ndarray:
+    """Soft membership of lots to every style (rows sum to 1), as segmentation gives it."""
+    n_styles = len(model.style_ids)
+    if clusterer is None or not len(points):
+        return np.full((len(points), n_styles), 1.0 / n_styles)
+    import hdbscan
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        vectors = np.asarray(hdbscan.membership_vector(clusterer, points), dtype=float)
+    vectors = vectors.reshape(len(points), -1)
+    position = {sid: s for s, sid in enumerate(model.style_ids)}
+    soft = np.zeros((len(points), n_styles))
+    for c, sid in enumerate(model.params["cluster_styles"]):
+        if sid in position:
+            soft[:, position[sid]] += vectors[:, c]
+    return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)
 
 
 def _nearest_lots(model: StyleModel, space: np.ndarray, k: int) -> pd.DataFrame:
@@ -335,8 +344,9 @@ def _band_shares(model: StyleModel, space: np.ndarray, home: np.ndarray, config:
     grades = lots["grade"].to_numpy(dtype=float)
     if not np.isfinite(grades).any():
         return shares, counts
-    styles = lots["style"].to_numpy(dtype=object)
-    bands = assign_bands(grades, styles, config.bands)
+    styles, bands = lot_bands(grades, lots["style"].to_numpy(dtype=object),
+                              lots["nearest_style"].to_numpy(dtype=object), config.bands,
+                              config.profile.include_unassigned)
     for sid in np.unique(home):
         pool = np.flatnonzero((styles == sid) & (bands >= 0))
         mine = np.flatnonzero(home == sid)
@@ -364,8 +374,7 @@ def _analyte_view(values: pd.DataFrame, model: StyleModel, profiles: Profiles | 
     parts = []
     for j, spec in enumerate(model.specs):
         x = values[spec.name].to_numpy(dtype=float)
-        train = model.values[spec.name].to_numpy(dtype=float).copy()
-        train[(model.flags[spec.name] == MISSING).to_numpy()] = np.nan
+        train = observed(model.values, model.flags, spec.name)
         range_iqr = float(np.nanquantile(train, 0.75) - np.nanquantile(train, 0.25))
         for sid in model.style_ids:
             mine = np.flatnonzero(home == sid)

@@ -34,11 +34,11 @@ import numpy as np
 import pandas as pd
 
 from vinstrata import stats
-from vinstrata.bands import assign_bands
-from vinstrata.cells import MISSING
+from vinstrata.bands import assign_bands, lot_bands
 from vinstrata.config import Config
 from vinstrata.errors import InputError
 from vinstrata.lots import AnalyteSpec
+from vinstrata.lots import observed as lot_values
 from vinstrata.model import UNASSIGNED, StyleModel
 from vinstrata.progress import Reporter
 
@@ -85,10 +85,8 @@ def style_groups(lots: pd.DataFrame, styles: pd.DataFrame, config: Config) -> li
         raise InputError("the lots have no grades; profiles need the grade column "
                          "([columns] grade)")
     style = lots["style"].to_numpy(dtype=object)
-    home = style.copy()
-    if config.profile.include_unassigned:
-        home = np.where(style == UNASSIGNED, lots["nearest_style"].to_numpy(dtype=object), style)
-    bands_by_style = assign_bands(grades, home, config.bands)
+    home, bands_by_style = lot_bands(grades, style, lots["nearest_style"].to_numpy(dtype=object),
+                                     config.bands, config.profile.include_unassigned)
     trusted = dict(zip(styles["style"], styles["trusted"]))
     groups = []
     for sid in styles["style"]:
@@ -103,12 +101,6 @@ def style_groups(lots: pd.DataFrame, styles: pd.DataFrame, config: Config) -> li
 
 
 # --------------------------------------------------------------------------- one group
-
-
-def _observed(values: pd.DataFrame, flags: pd.DataFrame, analyte: str) -> np.ndarray:
-    out = values[analyte].to_numpy(dtype=float).copy()
-    out[(flags[analyte] == MISSING).to_numpy()] = np.nan
-    return out
 
 
 def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
@@ -361,7 +353,7 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
         groups = [g for g in groups if g.style != POOLED]
     grades = lots["grade"].to_numpy(dtype=float)
     analytes = [s.name for s in specs]
-    observed = {a: _observed(values, flags, a) for a in analytes}
+    observed = {a: lot_values(values, flags, a) for a in analytes}
     rng = np.random.default_rng(config.seed)
     rows, kept = [], []
     for i, group in enumerate(groups):

@@ -44,8 +44,9 @@ def analyte_summary(table: LotTable) -> pd.DataFrame:
     """Per analyte: unit conversion and cell counts.
 
     Columns: ``analyte, column, unit_in, unit, factor, converted, missing_used``
-    (missing cells of used rows, imputed later), ``censored``, ``non_numeric``,
-    ``negative``, ``out_of_range`` (rows rejected for this analyte).
+    (missing cells of used rows, imputed later), ``censored``, ``derived``
+    (cells computed from other analytes), ``non_numeric``, ``negative``,
+    ``out_of_range`` (rows rejected for this analyte).
     """
     used = table.used
     reasons = table.ids["status"]

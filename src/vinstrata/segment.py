@@ -57,11 +57,11 @@ from sklearn.covariance import ledoit_wolf
 
 from vinstrata import embed
 from vinstrata.analytes import KINDS_BY_KEY
-from vinstrata.bands import assign_bands, band_counts
+from vinstrata.bands import band_counts, lot_bands
 from vinstrata.cells import CENSORED_BELOW
 from vinstrata.config import AUTO, Config
 from vinstrata.errors import InputError
-from vinstrata.lots import LotTable
+from vinstrata.lots import USED, LotTable
 from vinstrata.model import UNASSIGNED, StyleModel, software_versions
 from vinstrata.progress import Reporter
 from vinstrata.transform import ChemistryScaler, fit_scaler, impute
@@ -561,7 +561,6 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     clusterer = fitted.get(key) or fit_hdbscan(space, *key)
     if not np.array_equal(np.asarray(clusterer.labels_), final.clusters):
         raise RuntimeError("HDBSCAN's sweep labels and its fit disagree")
-    clusterer.generate_prediction_data()
     groups = final.groups
     n_groups = max(final.n_groups, 1)
     if final.n_groups <= 1:
@@ -570,6 +569,7 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
         soft = np.ones((n, 1))
         strength = np.where(final.clusters >= 0, final.probabilities, 1.0)
     else:
+        clusterer.generate_prediction_data()
         soft = _group_memberships(clusterer, final.group_of_cluster, n_groups, n)
         strength = final.probabilities
     nearest_group = np.where(groups >= 0, groups, np.argmax(soft, axis=1))
@@ -596,12 +596,17 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     nearest_index = np.where(style_index >= 0, style_index, nearest_index)
     membership = np.where(style_index >= 0, strength, soft_styles[np.arange(n), nearest_index])
     style_shapes = [shapes[g] for g in order]
-    training_scores = np.empty(n)
+    # a lot whose nearest group was emptied by the typicality step is scored again
+    # against its nearest remaining style
+    training_scores = scores.copy()
+    moved = np.array([int(g) not in rank for g in nearest_group], dtype=bool)
     for s, shape in enumerate(style_shapes):
-        mask = nearest_index == s
-        training_scores[mask] = shape.score(scaled[mask])
+        mask = moved & (nearest_index == s)
+        if mask.any():
+            training_scores[mask] = shape.score(scaled[mask])
 
-    styles, stats = describe_styles(values, scaled, scaler.analytes, style_index, style_ids,
+    styles, stats = describe_styles(values, scaled, scaler.analytes, style_index,
+                                    nearest_index, style_ids,
                                     table, config, ids["grade"].to_numpy(dtype=float))
     for _, row in styles.iterrows():
         if not row["trusted"]:
@@ -633,9 +638,6 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     }
     outliers = {
         "cutoff": float(seg.outlier_cutoff),
-        "atypical_percentile": float(config.place.atypical_percentile),
-        "atypical_score": float(np.percentile(training_scores,
-                                              config.place.atypical_percentile)),
         "shapes": {sid: shape.to_dict() for sid, shape in zip(style_ids, style_shapes)},
     }
     rows = table.ids[["row", "lot_id", "status", "detail"]].copy()
@@ -691,8 +693,9 @@ def _group_memberships(clusterer: object, group_of_cluster: np.ndarray, n_groups
 
 
 def describe_styles(values: pd.DataFrame, scaled: np.ndarray, analytes: tuple[str, ...],
-                    style_index: np.ndarray, style_ids: list[str], table: LotTable,
-                    config: Config, grades: np.ndarray) -> tuple[pd.DataFrame, pd.DataFrame]:
+                    style_index: np.ndarray, nearest_index: np.ndarray, style_ids: list[str],
+                    table: LotTable, config: Config, grades: np.ndarray
+                    ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """The style table (ids, names, sizes, trust, medians) and per-analyte statistics.
 
     Returns
@@ -718,10 +721,13 @@ def describe_styles(values: pd.DataFrame, scaled: np.ndarray, analytes: tuple[st
     names = name_styles(z, {a: (spec_of[a].kind, spec_of[a].label) for a in analytes})
     band_n = None
     if table.has_grade and np.isfinite(grades).any():
-        labels = np.array([style_ids[s] if s >= 0 else "" for s in style_index], dtype=object)
-        bands = assign_bands(grades, labels, config.bands)
-        band_n = np.array([band_counts(bands[style_index == s], len(config.bands.labels))
-                           for s in range(n_styles)])
+        # band counts as the profiles will see them (their home styles and bands)
+        ids = np.array(style_ids, dtype=object)
+        labels = np.where(style_index >= 0, ids[np.maximum(style_index, 0)], UNASSIGNED)
+        home, bands = lot_bands(grades, labels, ids[nearest_index], config.bands,
+                                config.profile.include_unassigned)
+        band_n = np.array([band_counts(bands[home == sid], len(config.bands.labels))
+                           for sid in style_ids])
     notes = trust_notes(counts, band_n, config)
     styles = pd.DataFrame({
         "style": style_ids, "style_name": [names[s] for s in style_ids],
@@ -769,7 +775,7 @@ def lot_styles(model: StyleModel) -> pd.DataFrame:
     out = pd.DataFrame({"lot_id": rows["lot_id"].astype(str), "status": rows["status"]})
     for column in LOT_STYLE_COLUMNS[2:]:
         out[column] = pd.Series([None] * len(rows), dtype=object)
-    used = (rows["status"] == "used").to_numpy()
+    used = (rows["status"] == USED).to_numpy()
     names = model.style_names()
     trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
     lots = model.lots

@@ -49,7 +49,8 @@ ROW_IDS = "@row"  # [columns] lot_id for a table without lot ids: "row<N>" from 
 # --------------------------------------------------------------------------- column matching
 
 
-def _header_index(headers: list[str]) -> dict[str, list[str]]:
+def header_index(headers: list[str]) -> dict[str, list[str]]:
+    """Normalised name (with and without a bracketed unit) -> the headers it matches."""
     index: dict[str, list[str]] = {}
     for header in headers:
         keys = {normalise_name(header), normalise_name(split_unit(header)[0])}
@@ -74,13 +75,20 @@ _NOT_CHEMISTRY = {"vintage", "year", "millesime", "jahrgang", "annata", "anada",
                   "row", "index", "tank", "batch", "block"}
 
 
-def _auto_analytes(raw: RawTable, taken: set[str]) -> list[str]:
-    """Numeric columns that can be chemistry: at least 90 % numbers, and not a year or an id."""
+def numeric_columns(raw: RawTable, taken: set[str], decimal: str = "auto") -> list[str]:
+    """Columns that can be chemistry: at least 90 % numbers, and not a year or an id.
+
+    Used to find the analytes when the config names none, and to name the
+    unexpected columns of a new-lot file. ``decimal`` "auto" detects it from the
+    candidate columns, as :func:`validate` does.
+    """
+    candidates = [h for h in raw.cells.columns
+                  if h not in taken and normalise_name(split_unit(h)[0]) not in _NOT_CHEMISTRY]
+    if decimal == "auto":
+        decimal = cellmod.detect_decimal([raw.cells[h] for h in candidates])
     chosen = []
-    for header in raw.cells.columns:
-        if header in taken or normalise_name(split_unit(header)[0]) in _NOT_CHEMISTRY:
-            continue
-        values, states = cellmod.parse_cells(raw.cells[header])
+    for header in candidates:
+        values, states = cellmod.parse_cells(raw.cells[header], decimal)
         filled = states != cellmod.MISSING
         if not filled.sum() or (states[filled] == cellmod.NON_NUMERIC).mean() > 0.1:
             continue
@@ -264,7 +272,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     """
     name = raw.source.name
     headers = list(raw.cells.columns)
-    index = _header_index(headers)
+    index = header_index(headers)
     cols = config.columns
     lot_col = "" if cols.lot_id == ROW_IDS else _find_column(cols.lot_id, index, headers, name)
     grade_col = ""
@@ -276,7 +284,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
                 raise
     passthrough = {p: _find_column(p, index, headers, name) for p in cols.passthrough}
     taken = {lot_col, grade_col, *passthrough.values()} - {""}
-    analyte_names = list(cols.analytes) or _auto_analytes(raw, taken)
+    analyte_names = list(cols.analytes) or numeric_columns(raw, taken, config.ingest.decimal)
     if not analyte_names:
         raise InputError(f"{name}: no analyte columns (name them in [columns] analytes)")
     _check_table_keys(config, analyte_names)

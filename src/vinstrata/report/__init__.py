@@ -60,10 +60,11 @@ def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | Non
     config = config or model.config
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
+    date = briefing_date()
     data = Briefing(
         model=model, config=config, profiles=profiles, placements=placements,
-        date=briefing_date(), title=config.report.title,
-        foot=f"{config.report.title} · {model.source.name} · {briefing_date()}",
+        date=date, title=config.report.title,
+        foot=f"{config.report.title} · {model.source.name} · {date}",
         style_index={sid: i for i, sid in enumerate(model.style_ids)},
     )
     builders = [pages.cover, pages.maps, pages.segmentation]

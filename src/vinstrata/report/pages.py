@@ -15,10 +15,11 @@ import pandas as pd
 from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 
-from vinstrata.bands import assign_bands
+from vinstrata.bands import lot_bands
 from vinstrata.cells import CENSORED_ABOVE, CENSORED_BELOW, MISSING
 from vinstrata.config import Config
 from vinstrata.limits import CAUTION
+from vinstrata.lots import USED, observed
 from vinstrata.model import UNASSIGNED, StyleModel
 from vinstrata.place import INDICATION, Placements
 from vinstrata.profile import POOLED, Profiles, driver_summary
@@ -79,6 +80,14 @@ class Briefing:
         return f"{spec.label} ({spec.unit})" if spec.unit else spec.label
 
 
+def _bands(data: Briefing) -> tuple[np.ndarray, np.ndarray]:
+    """Home style and band of every training lot, as the profiles see them."""
+    lots = data.model.lots
+    return lot_bands(lots["grade"].to_numpy(dtype=float), lots["style"].to_numpy(dtype=object),
+                     lots["nearest_style"].to_numpy(dtype=object), data.config.bands,
+                     data.config.profile.include_unassigned)
+
+
 def _finish(fig: Figure, data: Briefing, page: int) -> Figure:
     footer(fig, data.foot, page)
     return fig
@@ -95,7 +104,7 @@ def cover(data: Briefing, page: int) -> Figure:
     model, config = data.model, data.config
     fig = new_page(data.title, config.report.producer)
     rows = model.rows
-    n_rows, n_used = len(rows), int((rows["status"] == "used").sum())
+    n_rows, n_used = len(rows), int((rows["status"] == USED).sum())
     unassigned = int((model.lots["style"] == UNASSIGNED).sum())
     trusted = int(data.styles["trusted"].sum())
     y = heading(fig, 0.895, "The range")
@@ -179,7 +188,7 @@ def maps(data: Briefing, page: int) -> Figure:
     grades = lots["grade"].to_numpy(dtype=float)
     labels = data.config.bands.labels
     if np.isfinite(grades).any():
-        bands = assign_bands(grades, style, data.config.bands)
+        bands = _bands(data)[1]
         colours = band_colours(len(labels))
         ax2.scatter(x[bands < 0], y[bands < 0], s=size * 0.7, c=UNASSIGNED_COLOUR,
                     linewidths=0, rasterized=True)
@@ -318,7 +327,8 @@ def style_card(data: Briefing, sid: str, page: int) -> Figure:
         ax2.set_ylim(-0.7, len(analytes) - 0.3)
         ax2.axvline(0, color="#999999", linewidth=0.6)
         ax2.set_yticks(pos, [data.label(a) for a in analytes], fontsize=7)
-        ax2.set_xlabel("Cliff's delta (no unit), 95 % CI\nfilled: driver (q < "
+        ax2.set_xlabel(f"Cliff's delta (no unit), {100 * config.profile.ci_level:g} % CI\n"
+                       "filled: driver (q < "
                        f"{config.profile.fdr:g}, CI excludes 0)", fontsize=7)
     else:
         ax2.text(0.5, 0.5, "no grades: not profiled", transform=ax2.transAxes, ha="center",
@@ -344,12 +354,9 @@ def _driver_panels(fig: Figure, data: Briefing, sid: str, drivers: pd.DataFrame,
                               f"false discovery rate {config.profile.fdr:g}."], size=9)
         return
     thresholds = data.profiles.thresholds.set_index(["style", "analyte"])
-    lots = model.lots
-    home = lots["style"].to_numpy(dtype=object)
-    if config.profile.include_unassigned:
-        home = np.where(home == UNASSIGNED, lots["nearest_style"].to_numpy(dtype=object), home)
+    home, bands = _bands(data)
     mask = home == sid
-    bands = assign_bands(lots["grade"].to_numpy(dtype=float), home, config.bands)[mask]
+    bands = bands[mask]
     labels = config.bands.labels
     colours = band_colours(len(labels))
     width = 0.84 / len(chosen)
@@ -358,10 +365,8 @@ def _driver_panels(fig: Figure, data: Briefing, sid: str, drivers: pd.DataFrame,
     for k, analyte in enumerate(chosen.index):
         ax = fig.add_axes([0.1 + k * width, 0.1, width - 0.08, top - 0.14])
         tidy(ax)
-        values = model.values[analyte].to_numpy(dtype=float)[mask]
-        missing = (model.flags[analyte] == MISSING).to_numpy()[mask]
-        groups = [values[(bands == b) & ~missing & np.isfinite(values)]
-                  for b in range(len(labels))]
+        values = observed(model.values, model.flags, analyte)[mask]
+        groups = [values[(bands == b) & np.isfinite(values)] for b in range(len(labels))]
         parts = ax.boxplot([g if g.size else [np.nan] for g in groups], widths=0.55,
                            patch_artist=True, showfliers=False)
         for patch, colour in zip(parts["boxes"], colours):
@@ -461,7 +466,7 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
     ax = _map_axes(fig, [0.1, 0.3, 0.82, 0.6])
     ax.scatter(lots["map_x"], lots["map_y"], s=2, c="#DDDDDD", linewidths=0, rasterized=True)
     details = placements.details
-    used = placements.lots[placements.lots["status"] == "used"].drop_duplicates("lot_id")
+    used = placements.lots[placements.lots["status"] == USED].drop_duplicates("lot_id")
     atypical = details["lot_id"].map(used.set_index("lot_id")["atypical"]).astype(bool)
     atypical = atypical.to_numpy()
     x, y = details["map_x"].to_numpy(), details["map_y"].to_numpy()
@@ -481,9 +486,9 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
     n_atyp = int(used["atypical"].astype(bool).sum())
     text_block(fig, 0.25, [
         f"{len(details)} new lots placed, {n_atyp} atypical; "
-        f"{int((placements.lots['status'] != 'used').sum())} rows rejected.",
+        f"{int((placements.lots['status'] != USED).sum())} rows rejected.",
         "A new lot's position is the weighted mean of its nearest historical lots' positions "
-        "(UMAP's own start for new points).",
+        "(the way UMAP starts new points).",
     ], size=8.5)
     return _finish(fig, data, page)
 
@@ -492,7 +497,7 @@ def new_lots_table(data: Briefing, page: int) -> Figure:
     placements = data.placements
     fig = new_page("New lots: style, typicality, indicative band, flags",
                    f"Band: {INDICATION}. {CAUTION}")
-    used = placements.lots[placements.lots["status"] == "used"]
+    used = placements.lots[placements.lots["status"] == USED]
     if not len(placements.details):
         text_block(fig, 0.88, ["No new lot could be placed."], size=10)
         return _finish(fig, data, page)
@@ -532,7 +537,7 @@ def data_quality(data: Briefing, page: int) -> Figure:
     fig = new_page("Data quality", "Every input row is accounted for: rows read = used + "
                    "rejected.")
     rows = model.rows
-    n, used = len(rows), int((rows["status"] == "used").sum())
+    n, used = len(rows), int((rows["status"] == USED).sum())
     counts = reason_counts(rows["status"])
     y, _ = text_block(fig, 0.9, [
         f"{model.source.name}: {n} rows read, {used} used, {n - used} rejected.",
@@ -558,7 +563,8 @@ def data_quality(data: Briefing, page: int) -> Figure:
                     f"{len(flags) - imputed - censored:>10}{dropped}")
     y = mono_block(fig, y, rows, size=7.5, bold_first=True)
     text_block(fig, y - 0.02, [
-        "Imputed: missing cells of used lots, filled from the 5 most similar lots (scaled "
+        "Imputed: missing cells of used lots, filled from the "
+        f"{data.config.segment.impute_neighbours} most similar lots (scaled "
         "chemistry) for the styles only; profiles leave them out.",
         "Censored: values written below (or above) a detection limit, stored by the "
         f"'{data.config.ingest.censored}' rule and flagged per cell.",
@@ -569,46 +575,53 @@ def data_quality(data: Briefing, page: int) -> Figure:
 # --------------------------------------------------------------------------- methods and cautions
 
 
-METHODS = (
-    "Styles come from the chemistry alone: grades never shape them. Each analyte is "
-    "log-transformed when strongly right-skewed, then scaled by its median and interquartile "
-    "range; UMAP reduces the scaled chemistry to a clustering space and HDBSCAN finds dense "
-    "groups there. A style is a group of lots whose chemistry resembles each other's more than "
-    "the rest of the range; it need not match a commercial category.",
-    "Grade bands: lots are compared top band against bottom band inside each style. Cliff's "
-    "delta is the probability that a top lot has the higher value minus the probability that "
-    "it has the lower (from -1 to +1; Romano et al. 2006 call |delta| below 0.147 negligible, "
-    "below 0.33 small, below 0.474 medium, above large). Its 95 % interval comes from a "
-    "seeded bootstrap. Hedges' g is the standardised mean difference.",
-    "A driver is an analyte whose top and bottom lots differ beyond chance: its Mann-Whitney "
-    "p-value, corrected by the Benjamini-Hochberg false discovery rate over every style and "
-    "analyte of the briefing (the pooled rows form a family of their own), is below the set "
-    "level and its delta interval excludes 0. A driver "
-    "describes an association in these lots; it is not proof that changing the analyte "
-    "changes the grade.",
-    "Thresholds: the Youden cut is the value that best separates top from bottom lots "
-    "(maximum sensitivity + specificity - 1); the target window is the central 80 % of the top "
-    "band's values. Neither is a specification: lots on the wrong side of a cut can grade well "
-    "and the reverse.",
-    "Sample sizes: a band with fewer than the minimum number of lots gets no effect size "
-    "('insufficient'), and a style that is small or has too few top or bottom lots is marked "
-    "untrusted; its numbers are shown but should not guide decisions. Pooled results over the "
-    "whole range mix styles and can hide a driver or reverse it; the 'where styles differ' page "
-    "says where.",
-    "New lots: a new lot is placed among the historical lots by its chemistry; 'atypical' "
-    "means its chemistry is unusual for its style (outlier score above the 95th percentile of "
-    "the historical lots), 'fits no style' that it resembles none. The indicative band is the "
-    "share of its nearest historical lots of the same style in each band: an indication from "
-    "neighbours, not a forecast of its grade.",
-    "Screening limits (volatile acidity and total SO2 maxima, the sulfite labelling line, a "
-    "low molecular SO2 warning) are screening flags only, never compliance verdicts: certified "
-    "laboratory analyses and the local regulations decide.",
-)
+def methods_text(config: Config) -> list[str]:
+    """The methods and cautions, with this run's settings in them."""
+    level = f"{100 * config.profile.ci_level:g} %"
+    low, high = config.profile.target_quantiles
+    window = f"{100 * (high - low):g} %"
+    prof, seg = config.profile, config.segment
+    return [
+        "Styles come from the chemistry alone: grades never shape them. Each analyte is "
+        "log-transformed when strongly right-skewed, then scaled by its median and interquartile "
+        "range; UMAP reduces the scaled chemistry to a clustering space and HDBSCAN finds dense "
+        "groups there. A style is a group of lots whose chemistry resembles each other's more "
+        "than the rest of the range; it need not match a commercial category.",
+        "Grade bands: lots are compared top band against bottom band inside each style. Cliff's "
+        "delta is the probability that a top lot has the higher value minus the probability "
+        "that it has the lower (from -1 to +1; Romano et al. 2006 call |delta| below 0.147 "
+        "negligible, below 0.33 small, below 0.474 medium, above large). Its "
+        f"{level} interval comes from a seeded bootstrap of {prof.bootstrap} resamples. "
+        "Hedges' g is the standardised mean difference.",
+        "A driver is an analyte whose top and bottom lots differ beyond chance: its "
+        "Mann-Whitney p-value, corrected by the Benjamini-Hochberg false discovery rate over "
+        "every style and analyte of the briefing (the pooled rows form a family of their own), "
+        f"is below {prof.fdr:g} and its delta interval excludes 0. A driver describes an "
+        "association in these lots; it is not proof that changing the analyte changes the grade.",
+        "Thresholds: the Youden cut is the value that best separates top from bottom lots "
+        f"(maximum sensitivity + specificity - 1); the target window is the central {window} of "
+        "the top band's values. Neither is a specification: lots on the wrong side of a cut can "
+        "grade well and the reverse.",
+        f"Sample sizes: a band with fewer than {prof.min_band_lots} lots gets no effect size "
+        f"('insufficient'), and a style with fewer than {seg.min_style_lots} lots, or too few "
+        "top or bottom lots, is marked untrusted; its numbers are shown but should not guide "
+        "decisions. Pooled results over the whole range mix styles and can hide a driver or "
+        "reverse it; the 'where styles differ' page says where.",
+        "New lots: a new lot is placed among the historical lots by its chemistry; 'atypical' "
+        "means its chemistry is unusual for its style (outlier score above the "
+        f"{config.place.atypical_percentile:g}th percentile of the historical lots), 'fits no "
+        "style' that it resembles none. The indicative band is the share of its nearest "
+        "historical lots of the same style in each band: an indication from neighbours, not a "
+        "forecast of its grade.",
+        "Screening limits (volatile acidity and total SO2 maxima, the sulfite labelling line, a "
+        "low molecular SO2 warning) are screening flags only, never compliance verdicts: "
+        "certified laboratory analyses and the local regulations decide.",
+    ]
 
 
 def methods(data: Briefing, page: int) -> Figure:
     fig = new_page("Methods and cautions", "What the numbers mean, and what they do not.")
-    text_block(fig, 0.9, list(METHODS), size=9, width=100, gap=0.6)
+    text_block(fig, 0.9, methods_text(data.config), size=9, width=100, gap=0.6)
     return _finish(fig, data, page)
 
 
@@ -634,9 +647,7 @@ def provenance(data: Briefing, page: int) -> Figure:
     ]
     y, _ = text_block(fig, 0.9, lines, size=8.5, width=110, gap=0.2)
     y = heading(fig, y - 0.01, "Configuration used", size=10)
-    config_text = json.dumps(data.config.to_dict(), indent=None, sort_keys=True)
-    config_lines = []
-    for key, value in json.loads(config_text).items():
-        config_lines.append(f"{key}: {json.dumps(value, sort_keys=True)}")
+    config_lines = [f"{key}: {json.dumps(value, sort_keys=True)}"
+                    for key, value in sorted(data.config.to_dict().items())]
     text_block(fig, y, config_lines, size=6.5, width=150, gap=0.15, bottom=0.04)
     return _finish(fig, data, page)
