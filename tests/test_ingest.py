@@ -697,3 +697,14 @@ def test_missing_file_and_folder_are_refused(tmp_path, run_cli):
         assert result.err.startswith("error:") and str(target) in result.err
         assert len(result.err.strip().splitlines()) == 1
 
+
+
+def test_a_refused_file_leaves_one_line_even_with_progress_on(tmp_path, run_cli):
+    # progress lines are on, yet the refused file's stderr is its one error line
+    path = tmp_path / "bad.csv"
+    path.write_text("lot,grade,ph\nA,15,3.2,9\n")
+    for command in (["check", path, "--out", tmp_path / "c"],
+                    ["segment", path, "--out", tmp_path / "s"]):
+        result = run_cli(*command)
+        assert result.code == 2
+        assert result.err.count("\n") == 1 and result.err.startswith("error:"), result

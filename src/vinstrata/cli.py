@@ -118,11 +118,12 @@ def check(state: State, lots: str, config_path: str | None, sheet: str | None,
     rep = state.reporter()
     config = _config(config_path)
     out = Path(out_dir or f"check_{Path(lots).stem}")
-    # no stage line: check is quick, and a refused file then gets its one error line alone
-    table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
+    with rep.stage("check: read and validate"):
+        table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
     pipeline.note_analytes(table, config, rep)
     _say(quality.describe(table))
     pipeline.write_check(table, out)
+    _summary(rep)
     _say(f"wrote {out}/")
 
 

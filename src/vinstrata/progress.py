@@ -34,11 +34,13 @@ class Reporter:
 
     @contextmanager
     def stage(self, name: str) -> Iterator[None]:
-        """A stage: its line is printed as it starts; its seconds go to :meth:`timing`."""
-        self.line(f"{name} ...")
+        """A stage: its line is printed when it ends, so that a file refused while it is
+        read leaves only its one error line on stderr; its seconds go to :meth:`timing`."""
         start = time.perf_counter()
         yield
-        self.timings.append((name.split(":")[0], time.perf_counter() - start))
+        took = time.perf_counter() - start
+        self.timings.append((name.split(":")[0], took))
+        self.line(f"{name} ... done ({took:.1f} s)")
 
     def timing(self) -> str:
         """One line of the seconds each stage took, for the closing summary."""
