@@ -17,8 +17,8 @@ from cold import demo_model, report, run_cold, vinstrata
 LOOP = """
 import sys, numpy as np
 from scipy import stats
-from vinstrata.model import load_model
-from vinstrata.bands import assign_bands
+from vinstrata.segment.model import load_model
+from vinstrata.profile.bands import assign_bands
 model = load_model(sys.argv[1]); b = int(sys.argv[2])
 lots = model.lots; rng = np.random.default_rng(0)
 bands = assign_bands(lots["grade"].to_numpy(float), lots["style"].to_numpy(object),
@@ -46,7 +46,7 @@ def main() -> None:
     script.write_text(LOOP)
     loop = run_cold([sys.executable, script, model, 2000])
     report("straightforward loop over resamples, B = 2000", loop)
-    floor = run_cold([sys.executable, "-c", "import vinstrata.profile, vinstrata.model"])
+    floor = run_cold([sys.executable, "-c", "import vinstrata.profile, vinstrata.segment.model"])
     report("python start and imports only", floor)
     print(f"ratio loop / vinstrata: {loop.seconds / ours.seconds:.1f}x; bootstrap work itself "
           f"{(loop.seconds - floor.seconds) / max(ours.seconds - floor.seconds, 1e-3):.0f}x")

@@ -9,10 +9,10 @@ import pytest
 
 from vinstrata import cli
 from vinstrata.config import packaged_config
-from vinstrata.model import save_model
 from vinstrata.profile import profile_styles
+from vinstrata.read.validate import load_lots
 from vinstrata.segment import fit_styles
-from vinstrata.validate import load_lots
+from vinstrata.segment.model import save_model
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_data"

@@ -11,7 +11,7 @@ import pytest
 
 from vinstrata.config import Config, load_config, packaged_config, parse_config
 from vinstrata.errors import InputError
-from vinstrata.limits import limit_set
+from vinstrata.place.limits import limit_set
 
 if sys.version_info >= (3, 11):
     import tomllib

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from vinstrata import embed
+from vinstrata.segment import embed
 
 
 @pytest.fixture(scope="module")

@@ -22,7 +22,7 @@ from hypothesis import HealthCheck, example, given, settings
 from hypothesis import strategies as st
 
 from vinstrata.config import load_config
-from vinstrata.validate import load_lots
+from vinstrata.read.validate import load_lots
 
 ANALYTES = ["alcohol", "ph", "free_so2", "total_so2", "malic_acid"]
 COLUMNS = ["lot", "grade", *ANALYTES]

@@ -20,7 +20,7 @@ import pytest
 from vinstrata import pipeline
 from vinstrata.config import Config, parse_config
 from vinstrata.errors import InputError
-from vinstrata.validate import load_lots
+from vinstrata.read.validate import load_lots
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
 
@@ -341,7 +341,7 @@ def test_limit_policy_stores_the_limit_itself(tmp_path):
 
 
 def test_not_detected_without_a_written_limit_uses_smallest_measured_value(tmp_path):
-    # documented fallback (vinstrata.cells): half the column's smallest positive value
+    # documented fallback (vinstrata.read.cells): half the column's smallest positive value
     table = _censored_table(tmp_path, ["ND", "12", "25"])
     np.testing.assert_allclose(table.values["free_so2"], [6.0, 12.0, 25.0])
     assert table.flags["free_so2"].tolist() == ["censored_below", "ok", "ok"]
@@ -427,7 +427,7 @@ def test_first_applicable_reason_wins(tmp_path):
     assert status == {2: "missing_lot_id", 3: "non_numeric:alcohol", 4: "missing_grade"}
 
 
-# Physically possible ranges are the issue contract (documented in vinstrata.analytes):
+# Physically possible ranges are the issue contract (documented in vinstrata.read.analytes):
 # pH 2.5-4.5, alcohol 0-25 % vol, density 0.95-1.20 g/mL, closed ranges.
 @pytest.mark.parametrize(("analyte", "value", "expected"), [
     ("ph", "2.5", "used"), ("ph", "4.5", "used"),

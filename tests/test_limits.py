@@ -1,4 +1,4 @@
-"""Screening of lots against legal limits (vinstrata.limits) and molecular SO2 (derive).
+"""Screening of lots against legal limits (vinstrata.place.limits) and molecular SO2 (derive).
 
 Primary sources named beside each check:
 
@@ -26,10 +26,10 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from vinstrata import limits as lim
 from vinstrata.config import Limits, LimitSet, parse_config
-from vinstrata.derive import free_so2_for_molecular, molecular_so2
-from vinstrata.lots import AnalyteSpec
+from vinstrata.place import limits as lim
+from vinstrata.read.derive import free_so2_for_molecular, molecular_so2
+from vinstrata.read.lots import AnalyteSpec
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -363,7 +363,7 @@ def test_caution_says_screening_only_and_who_decides():
 
 @pytest.mark.parametrize("market", ["eu", "oiv", "us"])
 def test_default_toml_limits_match_markets(market):
-    """configs/default.toml documents the same values as vinstrata.limits.MARKETS."""
+    """configs/default.toml documents the same values as vinstrata.place.limits.MARKETS."""
     with (ROOT / "configs" / "default.toml").open("rb") as fh:
         doc = tomllib.load(fh)
     table = doc["limits"][market]

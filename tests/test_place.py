@@ -7,8 +7,8 @@ import pytest
 
 from conftest import DEMO, ROOT
 from vinstrata import pipeline
-from vinstrata.limits import CAUTION
 from vinstrata.place import PLACEMENT_COLUMNS, describe, place_lots
+from vinstrata.place.limits import CAUTION
 
 CONFIG = ROOT / "configs" / "demo.toml"
 

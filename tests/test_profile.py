@@ -11,9 +11,9 @@ import pytest
 from conftest import DEMO
 from vinstrata.config import packaged_config
 from vinstrata.demo import generate_demo
-from vinstrata.ingest import RawTable, Source
 from vinstrata.profile import DRIVER_COLUMNS, POOLED, THRESHOLD_COLUMNS, profile_table
-from vinstrata.validate import validate
+from vinstrata.read.ingest import RawTable, Source
+from vinstrata.read.validate import validate
 
 
 def _planted_to_found(model) -> dict[str, str]:

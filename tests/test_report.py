@@ -10,8 +10,8 @@ from pypdf import PdfReader
 
 from conftest import DEMO
 from vinstrata import pipeline
-from vinstrata.limits import CAUTION
 from vinstrata.place import place_lots
+from vinstrata.place.limits import CAUTION
 from vinstrata.report import page_count, write_briefing
 
 

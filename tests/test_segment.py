@@ -10,7 +10,7 @@ from sklearn.metrics import adjusted_rand_score
 from conftest import DEMO
 from vinstrata.config import packaged_config
 from vinstrata.demo import generate_demo, write_demo
-from vinstrata.model import UNASSIGNED, load_model
+from vinstrata.read.validate import load_lots
 from vinstrata.segment import (
     fill_noise,
     fit_hdbscan,
@@ -19,7 +19,7 @@ from vinstrata.segment import (
     relative_validity,
     valley_ratio,
 )
-from vinstrata.validate import load_lots
+from vinstrata.segment.model import UNASSIGNED, load_model
 
 
 @pytest.fixture(scope="module")

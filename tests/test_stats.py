@@ -17,7 +17,7 @@ from scipy import stats as sps
 from sklearn.metrics import roc_auc_score, roc_curve
 from statsmodels.stats.multitest import multipletests
 
-from vinstrata import stats
+from vinstrata.profile import stats
 
 # --------------------------------------------------------------------------- helpers
 

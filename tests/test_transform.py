@@ -8,10 +8,10 @@ import pytest
 from scipy import stats
 
 from vinstrata.config import Derived, parse_config
-from vinstrata.derive import molecular_so2
-from vinstrata.ingest import RawTable, Source
-from vinstrata.transform import fit_scaler, impute
-from vinstrata.validate import validate
+from vinstrata.read.derive import molecular_so2
+from vinstrata.read.ingest import RawTable, Source
+from vinstrata.read.validate import validate
+from vinstrata.segment.transform import fit_scaler, impute
 
 
 def test_right_skewed_positive_analytes_are_logged_symmetric_ones_not():

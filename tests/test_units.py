@@ -2,7 +2,7 @@
 
 Molar masses are computed here from the IUPAC standard atomic weights (H 1.00794,
 C 12.0107, O 15.9994, S 32.065; IUPAC Commission on Isotopic Abundances and Atomic
-Weights, 2007 table), independently of the constants in vinstrata.units.
+Weights, 2007 table), independently of the constants in vinstrata.read.units.
 """
 
 from __future__ import annotations
@@ -12,11 +12,11 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vinstrata.analytes import KINDS_BY_KEY
 from vinstrata.config import parse_config
 from vinstrata.errors import InputError
-from vinstrata.units import factor_to_canonical, normalise_unit
-from vinstrata.validate import load_lots
+from vinstrata.read.analytes import KINDS_BY_KEY
+from vinstrata.read.units import factor_to_canonical, normalise_unit
+from vinstrata.read.validate import load_lots
 
 # IUPAC standard atomic weights (2007 table) of H, C, O and S
 A_H, A_C, A_O, A_S = 1.00794, 12.0107, 15.9994, 32.065
@@ -34,7 +34,7 @@ def factor(key: str, unit: str) -> float:
 
 
 def test_molar_masses_match_the_documented_values():
-    # IUPAC standard atomic weights; values quoted in vinstrata.units
+    # IUPAC standard atomic weights; values quoted in vinstrata.read.units
     assert abs(M_TARTARIC - 150.087) < 1e-3
     assert abs(M_SULFURIC - 98.079) < 1e-3
     assert abs(M_ACETIC - 60.052) < 1e-3
@@ -224,7 +224,7 @@ def test_units_key_for_an_analyte_not_in_the_table_is_refused(tmp_path):
 
 
 def test_quality_report_shows_the_conversion(tmp_path):
-    from vinstrata.quality import analyte_summary
+    from vinstrata.read.quality import analyte_summary
 
     table = _load(tmp_path, {"volatile_acidity": "g/L H2SO4"})
     rows = analyte_summary(table).set_index("analyte")

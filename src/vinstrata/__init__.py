@@ -28,9 +28,9 @@ except PackageNotFoundError:  # pragma: no cover - running from a source tree
 _API = {
     "Config": "vinstrata.config", "load_config": "vinstrata.config",
     "packaged_config": "vinstrata.config", "InputError": "vinstrata.errors",
-    "StyleModel": "vinstrata.model", "load_model": "vinstrata.model",
-    "save_model": "vinstrata.model", "fit_styles": "vinstrata.segment",
-    "load_lots": "vinstrata.validate",
+    "StyleModel": "vinstrata.segment.model", "load_model": "vinstrata.segment.model",
+    "save_model": "vinstrata.segment.model", "fit_styles": "vinstrata.segment.fit",
+    "load_lots": "vinstrata.read.validate",
 }
 
 __all__ = [*_API, "__version__"]

@@ -113,7 +113,8 @@ def demo(out_dir: str, n_lots: int, seed: int, noise_share: float, blank_share: 
 def check(state: State, lots: str, config_path: str | None, sheet: str | None,
           out_dir: str | None) -> None:
     """Validate a lot table and report its data quality."""
-    from vinstrata import pipeline, quality
+    from vinstrata import pipeline
+    from vinstrata.read import quality
 
     rep = state.reporter()
     config = _config(config_path)
@@ -169,8 +170,8 @@ def segment(state: State, lots: str, config_path: str | None, out_dir: str, shee
 def profile(state: State, model_dir: str, config_path: str | None, out_dir: str) -> None:
     """Profile each style against its grade bands; writes drivers, thresholds, contrasts."""
     from vinstrata import pipeline
-    from vinstrata.model import load_model
-    from vinstrata.profile import driver_summary
+    from vinstrata.profile.drivers import driver_summary
+    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     model = load_model(model_dir)
@@ -200,8 +201,8 @@ def place(state: State, new: str, model_dir: str, config_path: str | None, out_d
           sheet: str | None) -> None:
     """Place new lots against their styles; writes placements.csv and details."""
     from vinstrata import pipeline
-    from vinstrata.model import load_model
-    from vinstrata.place import describe
+    from vinstrata.place.text import describe
+    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     model = load_model(model_dir)
@@ -237,7 +238,7 @@ def brief(state: State, model_dir: str, profiles_dir: str | None, placements_dir
           config_path: str | None, out_pdf: str) -> None:
     """Write the buyer briefing PDF."""
     from vinstrata import pipeline
-    from vinstrata.model import load_model
+    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     model = load_model(model_dir)
@@ -285,7 +286,7 @@ def run(state: State, lots: str | None, new_lots: str | None, config_path: str |
     result = pipeline.run_all(lots, new_lots, config, out, rep, sheet=sheet)
     _say(pipeline.styles_text(result.model))
     if result.placements is not None:
-        from vinstrata.place import describe
+        from vinstrata.place.text import describe
 
         _say(describe(result.placements, limit=15))
     _summary(rep)

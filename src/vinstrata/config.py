@@ -61,6 +61,10 @@ class Ingest:
     censored: str = "half_limit"
     max_missing_share: float = 0.25
     duplicate_ids: str = "keep_first"
+    max_unpacked_mb: int = 512
+    max_cells: int = 50_000_000
+    max_columns: int = 5000
+    max_cell_kb: int = 64
 
 
 @dataclass(frozen=True)
@@ -115,7 +119,7 @@ class Place:
 
 @dataclass(frozen=True)
 class LimitSet:
-    """One market's screening limits; see :mod:`vinstrata.limits` for sources."""
+    """One market's screening limits; see :mod:`vinstrata.place.limits` for sources."""
 
     va_max_red: float
     va_max_white_rose: float
@@ -151,6 +155,13 @@ class Report:
 
 
 @dataclass(frozen=True)
+class Output:
+    """How output files are written (``[output]``)."""
+
+    spreadsheet_safe: bool = True
+
+
+@dataclass(frozen=True)
 class Config:
     """A whole validated configuration."""
 
@@ -166,6 +177,7 @@ class Config:
     place: Place = field(default_factory=Place)
     limits: Limits = field(default_factory=Limits)
     report: Report = field(default_factory=Report)
+    output: Output = field(default_factory=Output)
     seed: int = 20261201
     source: str = "<defaults>"
 
@@ -334,6 +346,10 @@ SCHEMA: dict[str, tuple[type, dict[str, Check], set[str]]] = {
             "censored": _choice("half_limit", "limit"),
             "max_missing_share": _between(_number, 0.0, 1.0),
             "duplicate_ids": _choice("keep_first", "reject_all"),
+            "max_unpacked_mb": _between(_integer, 1, 1_000_000),
+            "max_cells": _between(_integer, 1000, 10**12),
+            "max_columns": _between(_integer, 2, 10**7),
+            "max_cell_kb": _between(_integer, 1, 10**6),
         },
         set(),
     ),
@@ -404,6 +420,7 @@ SCHEMA: dict[str, tuple[type, dict[str, Check], set[str]]] = {
         {"title": _string, "producer": _string, "top_drivers": _between(_integer, 1, 10)},
         set(),
     ),
+    "output": (Output, {"spreadsheet_safe": _boolean}, set()),
 }
 
 _MARKETS = ("eu", "oiv", "us")

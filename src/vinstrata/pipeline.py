@@ -13,20 +13,21 @@ from typing import TYPE_CHECKING
 
 import pandas as pd
 
-from vinstrata import quality
 from vinstrata.config import Config
 from vinstrata.errors import InputError
-from vinstrata.ingest import read_table
-from vinstrata.lots import UNASSIGNED, LotTable
-from vinstrata.model import StyleModel, save_model
 from vinstrata.progress import Reporter
-from vinstrata.segment import fit_styles, lot_styles, style_table
+from vinstrata.read import quality
+from vinstrata.read.ingest import read_table
+from vinstrata.read.lots import UNASSIGNED, LotTable
+from vinstrata.read.validate import load_lots, validate
+from vinstrata.segment.fit import fit_styles
+from vinstrata.segment.model import StyleModel, save_model
+from vinstrata.segment.outputs import lot_styles, style_table
 from vinstrata.tables import write_csv
-from vinstrata.validate import load_lots, validate
 
 if TYPE_CHECKING:
-    from vinstrata.place import Placements
-    from vinstrata.profile import Profiles
+    from vinstrata.place.placing import Placements
+    from vinstrata.profile.drivers import Profiles
 
 CHECK_FILES = ("quality_summary.csv", "quality_analytes.csv", "row_status.csv")
 
@@ -110,7 +111,7 @@ def profile(model: StyleModel, config: Config | None = None,
     ``for_placing`` skips what placing new lots does not use (the pooled rows,
     the intervals of the cuts); the drivers and cuts are the same.
     """
-    from vinstrata.profile import profile_styles
+    from vinstrata.profile.drivers import profile_styles
 
     return profile_styles(model, config, rep, pooled=not for_placing,
                           cut_intervals=not for_placing)
@@ -127,7 +128,7 @@ def write_profile(profiles: Profiles, out: str | Path) -> list[Path]:
 def load_new(path: str | Path, model: StyleModel, config: Config,
              sheet: str | None = None) -> LotTable:
     """Read new lots through the training front door, refusing a file that does not fit."""
-    from vinstrata.place import check_columns
+    from vinstrata.place.match import check_columns
 
     config = _with_sheet(config, sheet)
     raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter)
@@ -138,7 +139,7 @@ def load_new(path: str | Path, model: StyleModel, config: Config,
 def place(table: LotTable, model: StyleModel, profiles: Profiles | None,
           config: Config | None = None, rep: Reporter | None = None) -> Placements:
     """Place new lots (see :func:`vinstrata.place.place_lots`)."""
-    from vinstrata.place import place_lots
+    from vinstrata.place.placing import place_lots
 
     return place_lots(table, model, profiles, config, rep)
 
@@ -193,7 +194,7 @@ def _booleans(frame: pd.DataFrame, *columns: str) -> pd.DataFrame:
 
 def read_profile(folder: str | Path) -> Profiles:
     """Read the files written by :func:`write_profile` back."""
-    from vinstrata.profile import Profiles
+    from vinstrata.profile.drivers import Profiles
 
     folder = Path(folder)
     frames = [_read(folder, name, "profile") for name in PROFILE_FILES]
@@ -208,7 +209,7 @@ def read_profile(folder: str | Path) -> Profiles:
 
 def read_place(folder: str | Path) -> Placements:
     """Read the files written by :func:`write_place` back."""
-    from vinstrata.place import Placements
+    from vinstrata.place.placing import Placements
 
     folder = Path(folder)
     frames = [_read(folder, name, "place") for name in PLACE_FILES]

@@ -13,11 +13,11 @@ import os
 from pathlib import Path
 
 from vinstrata.config import Config
-from vinstrata.model import StyleModel
-from vinstrata.place import Placements
-from vinstrata.profile import Profiles
+from vinstrata.place.placing import Placements
+from vinstrata.profile.drivers import Profiles
 from vinstrata.report import pages
 from vinstrata.report.pages import Briefing
+from vinstrata.segment.model import StyleModel
 
 RASTER_DPI = 130  # resolution of the rasterised scatter layers; text stays vector
 

@@ -15,15 +15,14 @@ import pandas as pd
 from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 
-from vinstrata.bands import lot_bands
-from vinstrata.cells import CENSORED_ABOVE, CENSORED_BELOW, MISSING
 from vinstrata.config import Config
-from vinstrata.limits import CAUTION
-from vinstrata.lots import USED, observed
-from vinstrata.model import UNASSIGNED, StyleModel
-from vinstrata.place import INDICATION, Placements
-from vinstrata.profile import POOLED, Profiles, driver_summary
-from vinstrata.quality import reason_counts
+from vinstrata.place.limits import CAUTION
+from vinstrata.place.placing import INDICATION, Placements
+from vinstrata.profile.bands import lot_bands
+from vinstrata.profile.drivers import POOLED, Profiles, driver_summary
+from vinstrata.read.cells import CENSORED_ABOVE, CENSORED_BELOW, MISSING
+from vinstrata.read.lots import UNASSIGNED, USED, observed
+from vinstrata.read.quality import reason_counts
 from vinstrata.report.layout import (
     INK,
     LINE_ADVANCE,
@@ -43,6 +42,7 @@ from vinstrata.report.layout import (
     tidy,
     wrap,
 )
+from vinstrata.segment.model import StyleModel
 
 MAX_TABLE_ROWS = 48
 MAX_LABELLED = 60

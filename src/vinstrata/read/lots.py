@@ -1,6 +1,6 @@
 """The data every stage passes on: a validated lot table and its analyte specs.
 
-These are plain frozen dataclasses over pandas DataFrames; :mod:`vinstrata.validate`
+These are plain frozen dataclasses over pandas DataFrames; :mod:`vinstrata.read.validate`
 builds them, every later stage reads them.
 """
 
@@ -11,8 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from vinstrata.cells import MISSING
-from vinstrata.ingest import Source
+from vinstrata.read.cells import MISSING
+from vinstrata.read.ingest import Source
 
 USED = "used"  # the status of a row that goes on
 UNASSIGNED = "unassigned"  # the style of a lot that fits no style

@@ -42,9 +42,9 @@ import pandas as pd
 
 from vinstrata.config import Config, parse_config
 from vinstrata.errors import InputError
-from vinstrata.ingest import Source
-from vinstrata.lots import UNASSIGNED, USED, AnalyteSpec  # noqa: F401 - UNASSIGNED re-exported
-from vinstrata.transform import ChemistryScaler
+from vinstrata.read.ingest import Source
+from vinstrata.read.lots import UNASSIGNED, USED, AnalyteSpec  # noqa: F401 - UNASSIGNED re-exported
+from vinstrata.segment.transform import ChemistryScaler
 
 FORMAT_VERSION = 1
 

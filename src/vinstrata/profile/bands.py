@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 
 from vinstrata.config import Bands
-from vinstrata.lots import UNASSIGNED
+from vinstrata.read.lots import UNASSIGNED
 
 
 def band_of(grades: np.ndarray, cuts: np.ndarray | tuple[float, ...]) -> np.ndarray:

@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import re
 
-from vinstrata.analytes import Kind
+from vinstrata.read.analytes import Kind
 
 M_TARTARIC = 150.087  # g/mol, diprotic
 M_SULFURIC = 98.079  # g/mol, diprotic

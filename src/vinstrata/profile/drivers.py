@@ -1,6 +1,6 @@
 """Within-style quality drivers: what separates top-graded from bottom-graded lots.
 
-:func:`profile_styles` works on a fitted :class:`~vinstrata.model.StyleModel`.
+:func:`profile_styles` works on a fitted :class:`~vinstrata.segment.model.StyleModel`.
 Per style, and for the pooled range (style ``all``), per analyte:
 
 * n, median and quartiles of each grade band (``band_stats``);
@@ -33,24 +33,23 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from vinstrata import stats
-from vinstrata.bands import assign_bands, lot_bands
 from vinstrata.config import Config
-from vinstrata.errors import InputError
-from vinstrata.lots import AnalyteSpec
-from vinstrata.lots import observed as lot_values
-from vinstrata.model import UNASSIGNED, StyleModel
+from vinstrata.profile import stats
+from vinstrata.profile.contrasts import contrasts
+from vinstrata.profile.groups import POOLED, Group, style_groups
+from vinstrata.profile.thresholds import THRESHOLD_COLUMNS, group_thresholds
 from vinstrata.progress import Reporter
+from vinstrata.read.lots import AnalyteSpec
+from vinstrata.read.lots import observed as lot_values
+from vinstrata.segment.model import StyleModel
 
-POOLED = "all"
 DRIVER_COLUMNS = ("style", "analyte", "n_top", "n_bottom", "median_top", "median_bottom",
                   "cliffs_delta", "ci_low", "ci_high", "hedges_g", "p_value", "q_value",
                   "spearman_rho", "is_driver", "rank", "trusted", "note")
+
+
 EXTRA_DRIVER_COLUMNS = ("hedges_g_ci_low", "hedges_g_ci_high", "magnitude", "iqr_top",
                         "iqr_bottom", "n_lots")
-THRESHOLD_COLUMNS = ("style", "analyte", "direction", "cut", "cut_ci_low", "cut_ci_high",
-                     "youden_j", "auc", "target_low", "target_high")
-CONTRAST_COLUMNS = ("analyte", "kind", "styles", "sentence")
 
 
 @dataclass(frozen=True)
@@ -62,45 +61,6 @@ class Profiles:
     contrasts: pd.DataFrame
     band_counts: pd.DataFrame
     band_stats: pd.DataFrame
-
-
-@dataclass(frozen=True)
-class Group:
-    """The lots of one style (or of the pooled range) with their bands."""
-
-    style: str
-    trusted: bool
-    rows: np.ndarray  # indices into the model's lots
-    bands: np.ndarray
-    note: str = ""
-
-
-# --------------------------------------------------------------------------- groups
-
-
-def style_groups(lots: pd.DataFrame, styles: pd.DataFrame, config: Config) -> list[Group]:
-    """The styles' lots (plus, if configured, their unassigned lots) and the pooled range."""
-    grades = lots["grade"].to_numpy(dtype=float)
-    if not np.isfinite(grades).any():
-        raise InputError("the lots have no grades; profiles need the grade column "
-                         "([columns] grade)")
-    style = lots["style"].to_numpy(dtype=object)
-    home, bands_by_style = lot_bands(grades, style, lots["nearest_style"].to_numpy(dtype=object),
-                                     config.bands, config.profile.include_unassigned)
-    trusted = dict(zip(styles["style"], styles["trusted"]))
-    groups = []
-    for sid in styles["style"]:
-        rows = np.flatnonzero(home == sid)
-        extra = int((style[rows] == UNASSIGNED).sum())
-        note = f"includes {extra} unassigned lots under their nearest style" if extra else ""
-        groups.append(Group(sid, bool(trusted[sid]), rows, bands_by_style[rows], note))
-    pooled_bands = assign_bands(grades, np.full(len(lots), POOLED, dtype=object), config.bands)
-    groups.append(Group(POOLED, True, np.arange(len(lots)), pooled_bands,
-                        "pooled over every lot of the range, styles ignored"))
-    return groups
-
-
-# --------------------------------------------------------------------------- one group
 
 
 def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
@@ -125,13 +85,14 @@ def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.nda
         all_vals = values[group.rows]
         row = {
             "style": group.style, "analyte": analyte, "n_top": n_top, "n_bottom": n_bottom,
-            "median_top": _q(xt[ok_t], 0.5), "median_bottom": _q(xb[ok_b], 0.5),
+            "median_top": stats.quantile_or_nan(xt[ok_t], 0.5),
+            "median_bottom": stats.quantile_or_nan(xb[ok_b], 0.5),
             "cliffs_delta": np.nan, "ci_low": np.nan, "ci_high": np.nan, "hedges_g": np.nan,
             "p_value": np.nan, "q_value": np.nan,
             "spearman_rho": stats.spearman_rho(all_vals, grades[group.rows]),
             "is_driver": False, "rank": np.nan, "trusted": group.trusted, "note": group.note,
             "hedges_g_ci_low": np.nan, "hedges_g_ci_high": np.nan, "magnitude": "",
-            "iqr_top": _iqr(xt[ok_t]), "iqr_bottom": _iqr(xb[ok_b]),
+            "iqr_top": stats.iqr_or_nan(xt[ok_t]), "iqr_bottom": stats.iqr_or_nan(xb[ok_b]),
             "n_lots": int(np.isfinite(all_vals).sum()),
         }
         if n_top < prof.min_band_lots or n_bottom < prof.min_band_lots:
@@ -164,137 +125,8 @@ def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.nda
     return out, weights
 
 
-def _q(x: np.ndarray, q: float) -> float:
-    return float(np.quantile(x, q)) if x.size else float("nan")
-
-
-def _iqr(x: np.ndarray) -> float:
-    return float(np.subtract(*np.quantile(x, [0.75, 0.25]))) if x.size else float("nan")
-
-
 def _join(*parts: str) -> str:
     return "; ".join(p for p in parts if p)
-
-
-def _thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np.ndarray],
-                weights: dict, config: Config, intervals: bool = True) -> list[dict]:
-    prof = config.profile
-    alpha = (1 - prof.ci_level) / 2
-    lo_q, hi_q = prof.target_quantiles
-    top_rows, bottom_rows = weights["top_rows"], weights["bottom_rows"]
-    out = []
-    for row in drivers.itertuples():
-        values = observed[row.analyte]
-        xt, xb = values[top_rows], values[bottom_rows]
-        top = xt[np.isfinite(xt)]
-        enough_top = top.size >= prof.min_band_lots
-        item = {
-            "style": group.style, "analyte": row.analyte, "direction": "", "cut": np.nan,
-            "cut_ci_low": np.nan, "cut_ci_high": np.nan, "youden_j": np.nan, "auc": np.nan,
-            "target_low": _q(top, lo_q) if enough_top else np.nan,
-            "target_high": _q(top, hi_q) if enough_top else np.nan,
-        }
-        if row.is_driver:
-            higher = row.cliffs_delta > 0
-            sorted_ = stats.Sorted.of(xt, xb)
-            ones_t = np.ones((xt.size, 1), dtype=np.float32)
-            ones_b = np.ones((xb.size, 1), dtype=np.float32)
-            cut, j = stats.youden_from_counts(sorted_.counts(ones_t, "top"),
-                                              sorted_.counts(ones_b, "bottom"),
-                                              sorted_.values, higher)
-            cuts = np.full(prof.bootstrap, np.nan)
-            for block in stats.blocks(prof.bootstrap, len(sorted_.values)) if intervals else []:
-                cuts[block] = stats.youden_from_counts(
-                    sorted_.counts(weights["top"][:, block], "top"),
-                    sorted_.counts(weights["bottom"][:, block], "bottom"),
-                    sorted_.values, higher)[0]
-            auc = (row.cliffs_delta + 1) / 2
-            item.update({
-                "direction": "higher_better" if higher else "lower_better",
-                "cut": float(cut[0]), "youden_j": float(j[0]),
-                "cut_ci_low": float(np.quantile(cuts, alpha)) if intervals else np.nan,
-                "cut_ci_high": float(np.quantile(cuts, 1 - alpha)) if intervals else np.nan,
-                "auc": float(auc if higher else 1 - auc),
-            })
-        out.append(item)
-    return out
-
-
-# --------------------------------------------------------------------------- contrasts
-
-
-def _say_side(higher: bool, label: str) -> str:
-    return f"{'higher' if higher else 'lower'} {label}"
-
-
-def _names(styles: list[str]) -> str:
-    if len(styles) <= 2:
-        return " and ".join(styles)
-    return ", ".join(styles[:-1]) + " and " + styles[-1]
-
-
-def contrasts(drivers: pd.DataFrame, labels: dict[str, str]) -> pd.DataFrame:
-    """Where drivers differ between trusted styles, and where the pooled range misleads.
-
-    Kinds (per analyte):
-
-    * ``reversal``: a driver in opposite directions in two or more trusted styles;
-    * ``style_specific``: a driver (one direction) in some trusted styles and no
-      clear effect in other trusted styles with enough lots;
-    * ``pooled_misleading``: the pooled range is not a driver, or points the other
-      way, while trusted styles show drivers; or the pooled range shows a driver
-      that no trusted style shows (a difference between styles dressed as a
-      quality driver).
-    """
-    rows = []
-    within = drivers[(drivers["style"] != POOLED) & drivers["trusted"].astype(bool)]
-    pooled = drivers[drivers["style"] == POOLED].set_index("analyte")
-    for analyte in dict.fromkeys(drivers["analyte"]):
-        label = labels.get(analyte, analyte)
-        mine = within[within["analyte"] == analyte]
-        evaluated = mine[mine["cliffs_delta"].notna()]
-        up = list(evaluated[evaluated["is_driver"] & (evaluated["cliffs_delta"] > 0)]["style"])
-        down = list(evaluated[evaluated["is_driver"] & (evaluated["cliffs_delta"] < 0)]["style"])
-        flat = list(evaluated[~evaluated["is_driver"].astype(bool)]["style"])
-        p = pooled.loc[analyte] if analyte in pooled.index else None
-        p_driver = bool(p is not None and p["is_driver"])
-        p_up = bool(p_driver and p["cliffs_delta"] > 0)
-        pooled_words = (f"pooled, {_say_side(p_up, label)} looks better" if p_driver
-                        else "pooled, no effect shows")
-        flat_words = f"; in {_names(flat)} no clear effect shows" if flat else ""
-        if up and down:
-            rows.append({"analyte": analyte, "kind": "reversal", "styles": ";".join(up + down),
-                         "sentence": f"In {_names(up)} higher {label} goes with higher grades; "
-                                     f"in {_names(down)} the opposite{flat_words}; "
-                                     f"{pooled_words}."})
-        elif (up or down) and flat:
-            side = up or down
-            rows.append({"analyte": analyte, "kind": "style_specific",
-                         "styles": ";".join(side + flat),
-                         "sentence": f"In {_names(side)} {_say_side(bool(up), label)} goes "
-                                     f"with higher grades{flat_words}; {pooled_words}."})
-        if up or down:
-            signs = {True} if up and not down else {False} if down and not up else {True, False}
-            if not p_driver or signs != {p_up}:
-                side_text = "; ".join(
-                    [f"inside {_names(up)} higher {label} goes with higher grades"] * bool(up)
-                    + [f"inside {_names(down)} lower {label} does"] * bool(down))
-                head = ("Pooled over all styles no effect shows" if not p_driver else
-                        f"Pooled over all styles {_say_side(p_up, label)} looks better")
-                rows.append({"analyte": analyte, "kind": "pooled_misleading",
-                             "styles": ";".join([*up, *down, POOLED]),
-                             "sentence": f"{head}, while {side_text}."})
-        elif p_driver and len(evaluated):
-            rows.append({"analyte": analyte, "kind": "pooled_misleading",
-                         "styles": ";".join([*flat, POOLED]),
-                         "sentence": f"Pooled over all styles {_say_side(p_up, label)} looks "
-                                     f"like a driver of higher grades, but inside no trusted "
-                                     f"style does {label} move with the grade: the pooled "
-                                     f"effect comes from differences between styles."})
-    return pd.DataFrame(rows, columns=list(CONTRAST_COLUMNS))
-
-
-# --------------------------------------------------------------------------- the stage
 
 
 def profile_styles(model: StyleModel, config: Config | None = None,
@@ -383,7 +215,7 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
         if group.style == POOLED:
             continue
         mine = drivers[drivers["style"] == group.style]
-        threshold_rows += _thresholds(group, mine, observed, weights, config, cut_intervals)
+        threshold_rows += group_thresholds(group, mine, observed, weights, config, cut_intervals)
     thresholds = pd.DataFrame(threshold_rows, columns=list(THRESHOLD_COLUMNS))
     trusted = dict(zip(styles["style"], styles["trusted"]))
     thresholds["trusted"] = thresholds["style"].map(trusted).astype(bool)

@@ -2,7 +2,7 @@
 
 A lot table may carry any chemistry column; the catalogue only adds what is
 known about the usual ones: the canonical unit, the other units labs report
-(see :mod:`vinstrata.units`), the physically possible range used to reject
+(see :mod:`vinstrata.read.units`), the physically possible range used to reject
 impossible values, and words for style names. A column is matched to a
 catalogue entry by its normalised name (see :func:`normalise_name`) or by an
 explicit ``[kinds]`` entry in the config; any other column is a *generic*
@@ -10,7 +10,7 @@ analyte: used as written, with no unit conversion and no bounds unless the
 config gives some under ``[bounds]``.
 
 To add an analyte to the catalogue, add a :class:`Kind` to ``KINDS`` (and its
-units to :mod:`vinstrata.units`); DEVELOPERS.md walks through it.
+units to :mod:`vinstrata.read.units`); DEVELOPERS.md walks through it.
 """
 
 from __future__ import annotations

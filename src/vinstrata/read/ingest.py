@@ -2,7 +2,7 @@
 
 This is the only module that opens a lot file. It returns every cell as text
 (:class:`RawTable`), so that parsing numbers, censored values and units is done
-once, the same way for every format, in :mod:`vinstrata.validate`.
+once, the same way for every format, in :mod:`vinstrata.read.validate`.
 
 * CSV and TSV: the delimiter is detected among comma, semicolon and tab from
   the header line (the candidate that splits the header into the most

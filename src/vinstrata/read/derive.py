@@ -19,12 +19,12 @@ import dataclasses
 
 import numpy as np
 
-from vinstrata.analytes import KINDS_BY_KEY
-from vinstrata.cells import MISSING
 from vinstrata.config import Derived
 from vinstrata.errors import InputError
-from vinstrata.lots import AnalyteSpec, LotTable
-from vinstrata.units import ACETIC_TO_TARTARIC
+from vinstrata.read.analytes import KINDS_BY_KEY
+from vinstrata.read.cells import MISSING
+from vinstrata.read.lots import AnalyteSpec, LotTable
+from vinstrata.read.units import ACETIC_TO_TARTARIC
 
 DERIVED_STATE = "derived"
 

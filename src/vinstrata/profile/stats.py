@@ -202,3 +202,13 @@ def blocks(b: int, width: int) -> list[slice]:
     """Slices of the resamples so that one block holds at most CHUNK_CELLS cells."""
     step = max(1, CHUNK_CELLS // max(width, 1))
     return [slice(i, min(i + step, b)) for i in range(0, b, step)]
+
+
+def quantile_or_nan(x: np.ndarray, q: float) -> float:
+    """The ``q`` quantile of ``x``; NaN for an empty array."""
+    return float(np.quantile(x, q)) if x.size else float("nan")
+
+
+def iqr_or_nan(x: np.ndarray) -> float:
+    """The interquartile range of ``x``; NaN for an empty array."""
+    return float(np.subtract(*np.quantile(x, [0.75, 0.25]))) if x.size else float("nan")

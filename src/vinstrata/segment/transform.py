@@ -30,6 +30,9 @@ import numpy as np
 import pandas as pd
 from scipy import stats
 
+from vinstrata.config import Config
+from vinstrata.read.cells import CENSORED_BELOW
+
 
 @dataclass(frozen=True)
 class AnalyteTransform:
@@ -190,3 +193,24 @@ def impute(scaled: np.ndarray, reference: np.ndarray | None = None, k: int = 5) 
     out = imputer.transform(scaled)
     # a column missing in every reference lot: the centre (0) of the scaled data
     return np.where(np.isnan(out), 0.0, out)
+
+
+def censored_at_limit(values: pd.DataFrame, flags: pd.DataFrame, policy: str) -> pd.DataFrame:
+    """Values for distances: a cell censored below a limit is placed at the limit."""
+    share = 0.5 if policy == "half_limit" else 1.0
+    out = values.copy()
+    for name in values.columns:
+        if name in flags.columns:
+            below = (flags[name] == CENSORED_BELOW).to_numpy()
+            if below.any():
+                column = out[name].to_numpy(dtype=float).copy()
+                column[below] = column[below] / share
+                out[name] = column
+    return out
+
+
+def scale_chemistry(values: pd.DataFrame, flags: pd.DataFrame, scaler: ChemistryScaler,
+                    config: Config, reference: np.ndarray | None = None) -> np.ndarray:
+    """Scaled, imputed chemistry of lots, as segmentation and placing both see it."""
+    at_limit = censored_at_limit(values, flags, config.ingest.censored)
+    return impute(scaler.transform(at_limit), reference, config.segment.impute_neighbours)

@@ -24,7 +24,7 @@ sources, so the EU line is used. VA is expressed as acetic acid.
 Where a lot's colour is unknown the strictest value of the market applies and
 the flag says so; where its sugar is unknown the dry (lower) SO2 maximum applies.
 The low molecular SO2 warning uses free SO2 and pH (Henderson-Hasselbalch,
-:func:`vinstrata.derive.molecular_so2`) against 0.5 mg/L for reds and 0.8 mg/L
+:func:`vinstrata.read.derive.molecular_so2`) against 0.5 mg/L for reds and 0.8 mg/L
 for whites and rosés, common trade targets (secondary sources).
 """
 
@@ -36,10 +36,10 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from vinstrata.analytes import normalise_name
 from vinstrata.config import Limits, LimitSet
-from vinstrata.derive import molecular_so2
-from vinstrata.lots import AnalyteSpec
+from vinstrata.read.analytes import normalise_name
+from vinstrata.read.derive import molecular_so2
+from vinstrata.read.lots import AnalyteSpec
 
 CAUTION = ("Screening flags only: certified laboratory analyses and the local regulations "
            "decide.")

@@ -2,8 +2,8 @@
 
 :func:`validate` is the front door every command goes through, for training
 lots and new lots alike: it matches the configured columns, parses cells
-(:mod:`vinstrata.cells`), converts units (:mod:`vinstrata.units`), gives every
-row a status and adds the derived analytes (:mod:`vinstrata.derive`). No row is
+(:mod:`vinstrata.read.cells`), converts units (:mod:`vinstrata.read.units`), gives every
+row a status and adds the derived analytes (:mod:`vinstrata.read.derive`). No row is
 dropped: a row that cannot be used keeps its place with a rejection reason.
 
 Statuses (the first that applies wins; ``detail`` says more):
@@ -17,14 +17,14 @@ Statuses (the first that applies wins; ``detail`` says more):
 ``missing_grade``          no grade where the command needs one
 ``negative:<column>``      a negative concentration
 ``out_of_range:<column>``  outside the physically possible range of the analyte
-                           (see :mod:`vinstrata.analytes` for each range's source)
+                           (see :mod:`vinstrata.read.analytes` for each range's source)
 ``free_so2_above_total``   free SO2 greater than total SO2
 ``too_many_missing``       more than ``ingest.max_missing_share`` of the
                            analytes missing
 =========================  =====================================================
 
 Missing cells in used rows are imputed later, inside the fitted transform
-(:mod:`vinstrata.transform`), and flagged per cell.
+(:mod:`vinstrata.segment.transform`), and flagged per cell.
 """
 
 from __future__ import annotations
@@ -35,14 +35,21 @@ from collections.abc import Callable
 import numpy as np
 import pandas as pd
 
-from vinstrata import cells as cellmod
-from vinstrata.analytes import KINDS_BY_KEY, Kind, kind_for, label_for, normalise_name, split_unit
 from vinstrata.config import Config
-from vinstrata.derive import add_derived
 from vinstrata.errors import InputError
-from vinstrata.ingest import RawTable, read_table
-from vinstrata.lots import USED, AnalyteSpec, LotTable
-from vinstrata.units import factor_to_canonical
+from vinstrata.read import cells as cellmod
+from vinstrata.read.analytes import (
+    KINDS_BY_KEY,
+    Kind,
+    kind_for,
+    label_for,
+    normalise_name,
+    split_unit,
+)
+from vinstrata.read.derive import add_derived
+from vinstrata.read.ingest import RawTable, read_table
+from vinstrata.read.lots import USED, AnalyteSpec, LotTable
+from vinstrata.read.units import factor_to_canonical
 
 ROW_IDS = "@row"  # [columns] lot_id for a table without lot ids: "row<N>" from the file row
 
@@ -255,7 +262,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     Parameters
     ----------
     raw : RawTable
-        Text cells from :func:`vinstrata.ingest.read_table`.
+        Text cells from :func:`vinstrata.read.ingest.read_table`.
     config : Config
     require_grade : bool
         Rows without a grade are rejected (``missing_grade``) when True and the

@@ -1,6 +1,6 @@
 """The data-quality account of a lot table: what was read, used, rejected, repaired.
 
-Pure functions over a :class:`~vinstrata.lots.LotTable`; ``vinstrata check`` prints
+Pure functions over a :class:`~vinstrata.read.lots.LotTable`; ``vinstrata check`` prints
 and writes them, the briefing draws them. Every input row is counted exactly
 once: rows read = used + rejected.
 """
@@ -9,9 +9,9 @@ from __future__ import annotations
 
 import pandas as pd
 
-from vinstrata import cells
-from vinstrata.derive import DERIVED_STATE
-from vinstrata.lots import USED, LotTable
+from vinstrata.read import cells
+from vinstrata.read.derive import DERIVED_STATE
+from vinstrata.read.lots import USED, LotTable
 
 
 def row_status(table: LotTable) -> pd.DataFrame:

@@ -1,0 +1,38 @@
+"""Placing: new lots against the styles of a fitted model, with screening flags.
+
+Modules, in the order the stage runs::
+
+    match       Refusing new-lot files that do not fit the model: other columns, other units.
+    placing     Placing new lots against the styles of a fitted model.
+    neighbours  The nearest historical lots of new lots, and the grade bands among them.
+    flags       New lots' analytes against their style: robust z, percentiles, cut and window flags.
+    limits      Screening of lots against legal limits and a molecular SO2 target.
+    text        The placements as a terminal table.
+"""
+
+from vinstrata.lazy import attach
+
+_NAMES = {
+    "check_columns": "vinstrata.place.match",
+    "check_units": "vinstrata.place.match",
+    "PLACEMENT_COLUMNS": "vinstrata.place.placing",
+    "INDICATION": "vinstrata.place.placing",
+    "Placements": "vinstrata.place.placing",
+    "place_lots": "vinstrata.place.placing",
+    "predict_styles": "vinstrata.place.placing",
+    "soft_memberships": "vinstrata.place.placing",
+    "join_near": "vinstrata.place.neighbours",
+    "nearest_lots": "vinstrata.place.neighbours",
+    "band_shares": "vinstrata.place.neighbours",
+    "analyte_view": "vinstrata.place.flags",
+    "lot_colours": "vinstrata.place.flags",
+    "short_flags": "vinstrata.place.flags",
+    "CAUTION": "vinstrata.place.limits",
+    "limit_set": "vinstrata.place.limits",
+    "normalise_colour": "vinstrata.place.limits",
+    "Flag": "vinstrata.place.limits",
+    "screen": "vinstrata.place.limits",
+    "describe": "vinstrata.place.text",
+}
+
+__getattr__, __all__ = attach(__name__, _NAMES)

@@ -1,0 +1,76 @@
+"""Segmenting: chemistry transformed and scaled, UMAP, HDBSCAN styles, the plain-data model.
+
+Modules, in the order the stage runs::
+
+    transform   Per-analyte transform and robust scaling, fitted on the training lots.
+    embed       UMAP embeddings of the scaled chemistry: the clustering space and the 2-D map.
+    sweep       The HDBSCAN cluster-size sweep: candidates, their relative validity and the pick.
+    joins       Joining clusters the embedding split apart, and dissolving groups that are no style.
+    typicality  How typical a lot's chemistry is of a style: the outlier score.
+    names       Style names from their chemistry: short, readable and unique within a fit.
+    styles      The style table: sizes, medians, names and the trust verdict of each style.
+    assign      Lots assigned to a fitted model's styles: HDBSCAN rebuilt, soft membership, typicality.
+    fit         Segmenting a range into styles from its chemistry alone.
+    model       The style model: what segmentation learns, saved as plain data.
+    outputs     The contract tables of the segment stage: lot_styles.csv and styles.csv.
+"""
+
+from vinstrata.lazy import attach
+
+_NAMES = {
+    "AnalyteTransform": "vinstrata.segment.transform",
+    "ChemistryScaler": "vinstrata.segment.transform",
+    "choose_method": "vinstrata.segment.transform",
+    "fit_scaler": "vinstrata.segment.transform",
+    "impute": "vinstrata.segment.transform",
+    "censored_at_limit": "vinstrata.segment.transform",
+    "scale_chemistry": "vinstrata.segment.transform",
+    "Neighbours": "vinstrata.segment.embed",
+    "nearest": "vinstrata.segment.embed",
+    "smooth_knn_dist": "vinstrata.segment.embed",
+    "memberships": "vinstrata.segment.embed",
+    "fuzzy_graph": "vinstrata.segment.embed",
+    "default_epochs": "vinstrata.segment.embed",
+    "layouts": "vinstrata.segment.embed",
+    "layout": "vinstrata.segment.embed",
+    "interpolate": "vinstrata.segment.embed",
+    "Clustering": "vinstrata.segment.sweep",
+    "default_min_samples": "vinstrata.segment.sweep",
+    "sweep_sizes": "vinstrata.segment.sweep",
+    "relative_validity": "vinstrata.segment.sweep",
+    "fit_hdbscan": "vinstrata.segment.sweep",
+    "sweep_labels": "vinstrata.segment.sweep",
+    "evaluate": "vinstrata.segment.sweep",
+    "choose_size": "vinstrata.segment.sweep",
+    "sweep_table": "vinstrata.segment.sweep",
+    "lot_groups": "vinstrata.segment.joins",
+    "spread": "vinstrata.segment.joins",
+    "drop_diffuse": "vinstrata.segment.joins",
+    "separating_axis": "vinstrata.segment.joins",
+    "valley_ratio": "vinstrata.segment.joins",
+    "fill_noise": "vinstrata.segment.joins",
+    "join_split_clusters": "vinstrata.segment.joins",
+    "StyleShape": "vinstrata.segment.typicality",
+    "wilson_hilferty": "vinstrata.segment.typicality",
+    "distance_score": "vinstrata.segment.typicality",
+    "fit_shape": "vinstrata.segment.typicality",
+    "style_phrase": "vinstrata.segment.names",
+    "name_styles": "vinstrata.segment.names",
+    "trust_notes": "vinstrata.segment.styles",
+    "describe_styles": "vinstrata.segment.styles",
+    "rebuild_clusterer": "vinstrata.segment.assign",
+    "style_shapes": "vinstrata.segment.assign",
+    "group_memberships": "vinstrata.segment.assign",
+    "fit_styles": "vinstrata.segment.fit",
+    "FORMAT_VERSION": "vinstrata.segment.model",
+    "software_versions": "vinstrata.segment.model",
+    "StyleModel": "vinstrata.segment.model",
+    "save_model": "vinstrata.segment.model",
+    "load_model": "vinstrata.segment.model",
+    "LOT_STYLE_COLUMNS": "vinstrata.segment.outputs",
+    "STYLE_COLUMNS": "vinstrata.segment.outputs",
+    "lot_styles": "vinstrata.segment.outputs",
+    "style_table": "vinstrata.segment.outputs",
+}
+
+__getattr__, __all__ = attach(__name__, _NAMES)
