@@ -4,14 +4,24 @@ from __future__ import annotations
 
 import dataclasses
 import sys
+from collections.abc import Mapping
 from importlib import resources
 from pathlib import Path
 
 import pytest
 
-from vinstrata.config import Config, load_config, packaged_config, parse_config
+from vinstrata.config import (
+    SCHEMA,
+    Columns,
+    Config,
+    LimitSet,
+    load_config,
+    packaged_config,
+    parse_config,
+    section_of,
+)
 from vinstrata.errors import InputError
-from vinstrata.place.limits import limit_set
+from vinstrata.place.limits import MARKETS, limit_set
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -95,13 +105,64 @@ def test_keys_left_out_take_the_defaults_documented_in_default_toml():
         documented.limits, overrides={})
 
 
-def test_every_schema_key_is_documented_in_default_toml():
-    raw = tomllib.loads((CONFIGS / "default.toml").read_text("utf-8"))
-    from vinstrata.config import SCHEMA
+# tables whose keys the user names (analytes), not the config
+OPEN_TABLES = {"units", "kinds", "bounds", "segment.transforms"}
+# the packaged default is also the config of a run without --config: it names the usual columns
+EXAMPLES = {"columns.lot_id", "columns.grade"}
 
-    for section, (_, checks, _) in SCHEMA.items():
-        assert section in raw, section
-        assert set(checks) <= set(raw[section]), (section, set(checks) - set(raw[section]))
+
+def _written_keys(raw: dict, prefix: str = "") -> set[str]:
+    """The dotted keys a TOML document sets."""
+    out = set()
+    for key, value in raw.items():
+        name = prefix + key
+        if isinstance(value, dict) and name not in OPEN_TABLES:
+            out |= _written_keys(value, name + ".")
+        else:
+            out.add(name)
+    return out
+
+
+def _declared_keys() -> set[str]:
+    """The dotted keys the dataclasses declare."""
+    top = {f.name for f in dataclasses.fields(Config)} - {"source"} - set(SCHEMA)
+    sections = {f"{name}.{key}" for name, (_, checks, _) in SCHEMA.items() for key in checks}
+    markets = {f"limits.{market}.{key}" for market in MARKETS
+               for key in section_of(LimitSet).checks}
+    return top | sections | markets
+
+
+def _value(config: Config, key: str) -> object:
+    value = config
+    for part in key.split("."):
+        value = value[part] if isinstance(value, Mapping) else getattr(value, part)
+    return value
+
+
+def test_config_files_hold_every_declared_key_with_its_default():
+    # a key is declared once, as a field of its dataclass; default.toml writes out every
+    # key with exactly that default (same type too: the config is hashed with the model),
+    # demo.toml only keys that exist, and the package ships the same files
+    for name in ("default.toml", "demo.toml"):
+        assert (PACKAGED / name).read_bytes() == (CONFIGS / name).read_bytes(), name
+    declared = _declared_keys()
+    default_raw = tomllib.loads((CONFIGS / "default.toml").read_text("utf-8"))
+    demo_raw = tomllib.loads((CONFIGS / "demo.toml").read_text("utf-8"))
+    written = _written_keys(default_raw)
+    assert written == declared, ("missing", declared - written, "unknown", written - declared)
+    assert _written_keys(demo_raw) <= declared, _written_keys(demo_raw) - declared
+
+    documented = load_config(CONFIGS / "default.toml")
+    built_in = Config(columns=Columns(lot_id="lot"))
+    for key in sorted(declared - EXAMPLES):
+        if key.startswith(tuple(f"limits.{market}." for market in MARKETS)):
+            _, market, name = key.split(".")
+            expected = getattr(MARKETS[market], name)
+            assert repr(documented.limits.overrides[market][name]) == repr(expected), key
+        else:
+            assert repr(_value(documented, key)) == repr(_value(built_in, key)), key
+    for key in EXAMPLES:
+        assert isinstance(_value(documented, key), str), key
 
 
 # --------------------------------------------------------------------------- refusals
@@ -184,8 +245,11 @@ def test_missing_config_file_is_refused(tmp_path, run_cli):
     (tmp_path / "lots.csv").write_text(LOTS, encoding="utf-8")
     result = run_cli("check", tmp_path / "lots.csv", "--config", tmp_path / "none.toml",
                      "--out", tmp_path / "o")
+    # click checks the path given on the command line, with its own usage error
     assert result.code == 2
-    assert result.err.startswith("error:") and "none.toml" in result.err
+    assert "Invalid value for '--config'" in result.err and "none.toml" in result.err
+    with pytest.raises(InputError, match=r"none\.toml: config file not found"):
+        load_config(tmp_path / "none.toml")
 
 
 def test_wrong_type_inside_units_names_the_analyte(tmp_path):

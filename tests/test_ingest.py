@@ -7,6 +7,7 @@ used is the invented demo range in demo_data/lots.csv.
 from __future__ import annotations
 
 import csv
+import re
 import shutil
 import struct
 import zipfile
@@ -20,6 +21,7 @@ import pytest
 from vinstrata import pipeline
 from vinstrata.config import Config, parse_config
 from vinstrata.errors import InputError
+from vinstrata.read.ingest import read_table
 from vinstrata.read.validate import load_lots
 
 DEMO = Path(__file__).resolve().parents[1] / "demo_data"
@@ -691,11 +693,16 @@ def test_junk_file_gives_one_error_line_and_exit_code_2(tmp_path, run_cli, name,
 
 
 def test_missing_file_and_folder_are_refused(tmp_path, run_cli):
-    for target in (tmp_path / "nowhere.csv", tmp_path):
+    # the command line's paths are click's: it refuses them with its own usage error
+    for target, why in ((tmp_path / "nowhere.csv", "does not exist"),
+                        (tmp_path, "is a directory")):
         result = run_cli("check", target, "--config", _toml(tmp_path), "--out", tmp_path / "o")
         assert result.code == 2, result
-        assert result.err.startswith("error:") and str(target) in result.err
-        assert len(result.err.strip().splitlines()) == 1
+        assert f"Invalid value for 'LOTS': File '{target}' {why}" in result.err
+        assert "Traceback" not in result.err
+    for target in (tmp_path / "nowhere.csv", tmp_path):  # the library's own one-line refusal
+        with pytest.raises(InputError, match=re.escape(str(target))):
+            read_table(target)
 
 
 

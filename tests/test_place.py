@@ -85,6 +85,12 @@ def test_place_cli_contract_and_terminal_table(demo_model_dir, tmp_path, run_cli
     assert set(neighbours["rank"]) == {1, 2, 3, 4, 5}
     analytes = pd.read_csv(tmp_path / "out" / "placement_analytes.csv")
     assert analytes["percentile"].between(0, 100).all()
+    assert set(analytes["flag"].fillna("")) <= {"", "off_style", "losing_side"}
+    details = pd.read_csv(tmp_path / "out" / "placement_details.csv", keep_default_na=False)
+    assert list(details.columns[-4:]) == ["flags_text", "flags_short", "driver_score",
+                                          "driver_cut"]
+    assert not details["flags_short"].isin(["-", "'-"]).any()
+    assert not placements["flags"].str.contains("outside_target", regex=False).any()
     assert max(len(line) for line in result.out.splitlines()) <= 100
     assert CAUTION in result.out
     assert "not a forecast" in result.out
@@ -181,3 +187,23 @@ def test_atypical_line_follows_the_placing_config(demo_model, demo_profiles):
     default = place_lots(table, demo_model, demo_profiles).lots["atypical"].astype(bool)
     more = place_lots(table, demo_model, demo_profiles, strict).lots["atypical"].astype(bool)
     assert more.sum() > default.sum() and (more | ~default).all()
+
+
+def test_placements_carry_their_settings_through_their_folder(demo_model, demo_profiles,
+                                                              tmp_path):
+    import dataclasses
+
+    from vinstrata.errors import InputError
+
+    table = pipeline.load_new(DEMO / "new_lots.csv", demo_model, demo_model.config)
+    config = dataclasses.replace(demo_model.config, place=dataclasses.replace(
+        demo_model.config.place, atypical_percentile=90.0))
+    placements = place_lots(table, demo_model, demo_profiles, config)
+    settings = placements.settings
+    assert settings.atypical_percentile == 90.0 and settings.market == "eu"
+    assert settings.model_sha256 == demo_model.source.sha256
+    pipeline.write_place(placements, tmp_path / "out")
+    assert pipeline.read_place(tmp_path / "out").settings == settings
+    (tmp_path / "out" / "place_settings.json").unlink()
+    with pytest.raises(InputError, match=r"no place_settings\.json .*'vinstrata place' again"):
+        pipeline.read_place(tmp_path / "out")

@@ -8,7 +8,7 @@ import subprocess
 import pytest
 from pypdf import PdfReader
 
-from conftest import DEMO
+from conftest import DEMO, ROOT
 from vinstrata import pipeline
 from vinstrata.place import place_lots
 from vinstrata.place.limits import CAUTION
@@ -42,6 +42,8 @@ def test_briefing_holds_every_style_the_warnings_cautions_and_hash(demo_model, b
 def test_page_count_matches_the_styles(demo_model, briefing):
     _, reader, _ = briefing
     assert len(reader.pages) == page_count(len(demo_model.styles), with_placements=True)
+    # one page more with a previous model (tests/test_previous.py renders it)
+    assert page_count(4, False, with_previous=True) == page_count(4, False) + 1
 
 
 def test_briefing_without_placements_or_grades(demo_model, tmp_path):
@@ -86,3 +88,29 @@ def test_briefing_is_byte_identical_for_the_same_inputs(demo_model, demo_profile
     assert first.read_bytes() == second.read_bytes()
     assert b"2026-12-01" in first.read_bytes() or "2026-12-01" in " ".join(
         p.extract_text() for p in PdfReader(str(first)).pages)
+
+
+def _methods_page(path) -> str:
+    reader = PdfReader(str(path))
+    page = next(p.extract_text() for p in reader.pages if "Methods and cautions" in
+                p.extract_text())
+    return " ".join(page.split())
+
+
+def test_methods_page_states_the_profiles_settings_not_the_briefings_config(
+        demo_model_dir, tmp_path, run_cli):
+    # profiles made with 500 resamples, the briefing given a config that says 2000
+    config = ROOT / "configs" / "demo.toml"
+    small = tmp_path / "small.toml"
+    small.write_text(config.read_text() + "\n[profile]\nbootstrap = 500\n", encoding="utf-8")
+    result = run_cli("-q", "profile", "--model", demo_model_dir, "--config", small,
+                     "--out", tmp_path / "p")
+    assert result.code == 0, result
+    for extra in (["--config", config], []):
+        pdf = tmp_path / f"brief{len(extra)}.pdf"
+        result = run_cli("-q", "brief", "--model", demo_model_dir, "--profiles", tmp_path / "p",
+                         *extra, "--out", pdf)
+        assert result.code == 0, result
+        text = _methods_page(pdf)
+        assert "bootstrap of 500 resamples" in text, extra
+        assert "2000" not in text

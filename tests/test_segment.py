@@ -55,14 +55,14 @@ def test_hdbscan_labels_agree_with_scikit_learn_hdbscan(demo_model):
     from sklearn.cluster import HDBSCAN
 
     params = demo_model.params
-    reference = HDBSCAN(min_cluster_size=params["min_cluster_size"], copy=True,
-                        min_samples=params["min_samples"]).fit(demo_model.space)
+    reference = HDBSCAN(min_cluster_size=params.min_cluster_size, copy=True,
+                        min_samples=params.min_samples).fit(demo_model.space)
     assert adjusted_rand_score(reference.labels_, demo_model.clusters) >= 0.99
 
 
 def test_relative_validity_matches_hdbscan_property(demo_model):
-    clusterer = fit_hdbscan(demo_model.space, demo_model.params["min_cluster_size"],
-                            demo_model.params["min_samples"])
+    clusterer = fit_hdbscan(demo_model.space, demo_model.params.min_cluster_size,
+                            demo_model.params.min_samples)
     mst = clusterer.minimum_spanning_tree_.to_numpy()
     assert relative_validity(mst, clusterer.labels_) == pytest.approx(
         clusterer.relative_validity_, rel=1e-9)
@@ -109,10 +109,13 @@ def _segment_generated(tmp_path, **kwargs):
 
 
 def test_one_planted_style_gives_one_style(tmp_path):
-    # a range with no real structure is reported as one style, not split by force
+    # a range drawn from one planted style is reported as one style holding nearly every
+    # lot: not split by force, and not one large style beside small untrusted ones
     _, model = _segment_generated(tmp_path, n_lots=2500, seed=5, styles=("structured_red",),
                                   bad_rows=0, n_new=0)
-    assert int(model.styles["trusted"].sum()) <= 1
+    assert list(model.styles["style"]) == ["S1"]
+    assert bool(model.styles["trusted"].iloc[0])
+    assert (model.lots["style"] == "S1").mean() >= 0.95
     assert (model.lots["style"] == UNASSIGNED).mean() < 0.05
 
 
@@ -207,3 +210,39 @@ def test_model_loads_as_plain_data_and_refuses_other_formats(demo_model_dir, tmp
 
     with pytest.raises(InputError, match="format version"):
         load_model(copy)
+
+
+def test_model_params_are_typed_and_keep_their_json_keys(demo_model_dir):
+    import json
+
+    from vinstrata.segment import SegmentParams
+
+    model = load_model(demo_model_dir)
+    stored = json.loads((demo_model_dir / "model.json").read_text())["params"]
+    assert isinstance(model.params, SegmentParams)
+    assert sorted(stored) == ["cluster_styles", "components", "epochs", "map_min_dist",
+                              "merge_valley", "min_cluster_size", "min_samples", "n_clusters",
+                              "neighbours", "one_style", "seed", "size_choice", "space"]
+    assert model.params.to_dict() == stored
+    assert SegmentParams.from_dict(stored) == model.params
+
+
+def test_assign_lots_unassigns_lots_that_fit_no_style():
+    # one rule for training and new lots: above the cutoff a lot is unassigned, keeps its
+    # nearest style and takes its soft membership to it
+    from vinstrata.segment import Prediction, assign_lots
+    from vinstrata.segment.typicality import StyleShape
+
+    shapes = [StyleShape(np.zeros(2), np.eye(2), 500), StyleShape(np.full(2, 10.0), np.eye(2),
+                                                                  500)]
+    scaled = np.array([[0.1, 0.0], [10.0, 9.9], [0.0, 30.0], [9.5, 10.2]])
+    soft = np.array([[0.9, 0.1], [0.2, 0.8], [0.7, 0.3], [0.4, 0.6]])
+    prediction = Prediction(style_index=np.array([0, 1, 0, -1]),
+                            strength=np.array([0.95, 0.85, 0.9, 0.0]),
+                            soft=lambda rows: soft[rows])
+    a = assign_lots(prediction, shapes, scaled, cutoff=3.5)
+    assert list(a.style_index) == [0, 1, -1, -1]
+    assert list(a.nearest_index) == [0, 1, 0, 1]
+    assert list(a.fits_none) == [False, False, True, False]
+    assert list(a.membership) == [0.95, 0.85, 0.7, 0.6]
+    assert a.outlier_score[2] > 3.5 > a.outlier_score[0]

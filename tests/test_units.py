@@ -12,7 +12,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from vinstrata.config import parse_config
+from vinstrata.config import load_config, parse_config
 from vinstrata.errors import InputError
 from vinstrata.read.analytes import KINDS_BY_KEY
 from vinstrata.read.units import factor_to_canonical, normalise_unit
@@ -44,7 +44,8 @@ def test_sulfuric_to_tartaric_acidity():
     got = factor("titratable_acidity", "g/L H2SO4")
     # ratio of equivalent masses (150.087/2) / (98.079/2); IUPAC standard atomic weights
     assert got == pytest.approx((M_TARTARIC / 2) / (M_SULFURIC / 2), rel=REL)
-    # Handbook of Enology (Ribereau-Gayon et al., vol. 1) gives the factor as 1.53
+    # Handbook of Enology (Ribereau-Gayon et al., vol. 1) gives the factor as 1.53 (edition
+    # and page not recorded: from memory, hence only two decimals are checked)
     assert round(got, 2) == 1.53
     # 3.92 g/L as H2SO4 is 6.00 g/L as tartaric acid (same sources)
     assert 3.92 * got == pytest.approx(6.00, abs=0.005)
@@ -54,7 +55,8 @@ def test_sulfuric_to_acetic_volatile_acidity():
     got = factor("volatile_acidity", "g/L H2SO4")
     # 2 x 60.052 / 98.079: acetic acid is monoprotic, sulfuric diprotic; IUPAC weights
     assert got == pytest.approx(2 * M_ACETIC / M_SULFURIC, rel=REL)
-    # Handbook of Enology (Ribereau-Gayon et al., vol. 1) gives the factor as 1.22
+    # Handbook of Enology (Ribereau-Gayon et al., vol. 1) gives the factor as 1.22 (edition
+    # and page not recorded: from memory, hence only two decimals are checked)
     assert round(got, 2) == 1.22
 
 
@@ -234,3 +236,29 @@ def test_quality_report_shows_the_conversion(tmp_path):
     assert rows.loc["volatile_acidity", "converted"] == 1
     assert rows.loc["titratable_acidity", "converted"] == 0
     assert np.isclose(rows.loc["titratable_acidity", "factor"], 1.0)
+
+
+# --------------------------------------------------------------------------- total acidity
+
+
+def test_total_acidity_is_a_name_of_titratable_acidity():
+    # the trade's "total acidity" is the titratable acidity labs report (as tartaric acid);
+    # a column of that name is read as titratable acidity
+    assert "total_acidity" in TA.aliases
+
+
+def test_a_config_asking_to_derive_total_acidity_is_refused_in_one_line(tmp_path, run_cli):
+    config = tmp_path / "c.toml"
+    config.write_text('[columns]\nlot_id = "lot"\n[derived]\nadd = ["total_acidity"]\n',
+                      encoding="utf-8")
+    with pytest.raises(InputError) as refused:
+        load_config(config)
+    message = str(refused.value)
+    assert message == (
+        f"{config}: key 'derived.add': \"total_acidity\" is no longer derived: labs report "
+        "titratable acidity directly, and \"total acidity\" is the trade's name for titratable "
+        "acidity (name the column titratable_acidity)")
+    (tmp_path / "lots.csv").write_text(HEADER + "\n" + ROW, encoding="utf-8")
+    result = run_cli("check", tmp_path / "lots.csv", "--config", config, "--out", tmp_path / "o")
+    assert result.code == 2, result
+    assert len(result.err.strip().splitlines()) == 1 and "no longer derived" in result.err

@@ -10,6 +10,14 @@ objects; the CLI is a thin layer over them::
     lots = load_lots("demo_data/lots.csv", config)
     model = fit_styles(lots, config)
 
+On pandas DataFrames, in the scikit-learn convention (``fit``, ``predict``,
+``get_params``, ``clone``)::
+
+    from vinstrata import StyleSegmenter
+
+    seg = StyleSegmenter(config="configs/demo.toml").fit(lots_frame)
+    styles = seg.predict(new_lots_frame)
+
 The names below are imported on first use, so that ``vinstrata --help`` or
 ``vinstrata demo`` do not pay for scikit-learn and scipy.
 """
@@ -30,7 +38,8 @@ _API = {
     "packaged_config": "vinstrata.config", "InputError": "vinstrata.errors",
     "StyleModel": "vinstrata.segment.model", "load_model": "vinstrata.segment.model",
     "save_model": "vinstrata.segment.model", "fit_styles": "vinstrata.segment.fit",
-    "load_lots": "vinstrata.read.validate",
+    "load_lots": "vinstrata.read.validate", "VinstrataWarning": "vinstrata.errors",
+    "lots_from_frame": "vinstrata.read.validate", "StyleSegmenter": "vinstrata.estimator",
 }
 
 __all__ = [*_API, "__version__"]

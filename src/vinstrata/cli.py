@@ -1,9 +1,11 @@
 """The ``vinstrata`` command line: a thin layer over the pipeline functions.
 
 Every command reads its inputs, calls the stage functions and writes the
-contract files. Bad input ends with one line on stderr and exit code 2;
-an internal fault with a short message and exit code 1 (``--debug`` shows the
-traceback).
+contract files, holding its output folder from start to end
+(:class:`vinstrata.folders.OutputFolder`: the lock, then the manifest of what
+it wrote and the removal of another run's files). Bad input ends with one
+line on stderr and exit code 2; an internal fault with a short message and
+exit code 1 (``--debug`` shows the traceback).
 """
 
 from __future__ import annotations
@@ -17,22 +19,77 @@ import click
 from vinstrata import __version__
 from vinstrata.config import Config, load_config, packaged_config, with_overrides
 from vinstrata.errors import InputError
+from vinstrata.folders import Identity, OutputFolder, held_back
 from vinstrata.progress import Reporter
 
 CONFIG_HELP = "TOML config (configs/default.toml documents every key)."
 
 
 class State:
-    """Options shared by every command (``--debug`` is read by :func:`main` itself)."""
+    """Options shared by every command: ``--quiet`` and ``--debug``, given before the
+    command's name or after it (:func:`shared_options`); :func:`main` reads ``debug``."""
 
-    def __init__(self, quiet: bool) -> None:
+    def __init__(self, quiet: bool = False, debug: bool = False) -> None:
         self.quiet = quiet
+        self.debug = debug
 
     def reporter(self) -> Reporter:
-        return Reporter(quiet=self.quiet)
+        # stderr only: the closing summary repeats the warnings, Python's warnings would double them
+        return Reporter.command_line(quiet=self.quiet)
 
 
-def _config(path: str | None, seed: int | None = None, fallback: str = "default") -> Config:
+ENV_PREFIX = "VINSTRATA"  # VINSTRATA_<COMMAND>_<OPTION>, e.g. VINSTRATA_SEGMENT_OUT
+# inputs click checks: it names a missing file in its own usage error (exit code 2)
+LOT_FILE = click.Path(exists=True, dir_okay=False, path_type=Path)
+RESULT_FOLDER = click.Path(exists=True, file_okay=False, path_type=Path)
+# a model folder is checked by load_model, which first puts back one that an interrupted
+# save set aside: click's own existence check would refuse that folder
+MODEL_FOLDER = click.Path(file_okay=False, path_type=Path)
+OUT_FOLDER = click.Path(file_okay=False, path_type=Path)
+FORMATS = click.Choice(["csv", "parquet", "both"])
+FORMAT_HELP = ("Per-lot tables (lot_styles, placements and their detail files) as CSV, "
+               "Parquet or both.")
+PREVIOUS_HELP = ("The model/ folder of the previous fit (next vintage's refit, say): styles "
+                 "matched to its styles keep their ids and names; previous.csv says how.")
+
+
+def _set_flag(name: str):
+    """A callback setting ``State.<name>`` when the flag is given (at any level)."""
+
+    def callback(ctx: click.Context, param: click.Parameter, value: bool) -> None:
+        if value:
+            setattr(ctx.ensure_object(State), name, True)
+
+    return callback
+
+
+def shared_options(command):
+    """``--quiet/-q`` and ``--debug`` on a command too, so that they work after its name."""
+    command = click.option("--debug", is_flag=True, expose_value=False, callback=_set_flag("debug"),
+                           help="Show the traceback of an internal fault.")(command)
+    return click.option("--quiet", "-q", is_flag=True, expose_value=False,
+                        callback=_set_flag("quiet"), help="No progress lines on stderr.")(command)
+
+
+def config_option(command_name: str, help_text: str = CONFIG_HELP):
+    """``--config``, also from ``VINSTRATA_<COMMAND>_CONFIG`` or, for every command,
+    ``VINSTRATA_CONFIG`` (the command's own variable wins)."""
+    return click.option("--config", "config_path", type=LOT_FILE, help=help_text,
+                        envvar=[f"{ENV_PREFIX}_{command_name.upper()}_CONFIG",
+                                f"{ENV_PREFIX}_CONFIG"])
+
+
+def _previous(folder: Path | None):
+    """The model given by ``--previous`` (None when left out)."""
+    if folder is None:
+        return None
+    from vinstrata.segment.model import load_model
+
+    return load_model(folder)
+
+
+def _config(path: str | Path | None, seed: int | None = None,
+            fallback: str = "default") -> Config:
     config = load_config(path) if path else packaged_config(fallback)
     if seed is not None:
         config = with_overrides(config, seed=seed)
@@ -62,14 +119,18 @@ def _summary(rep: Reporter) -> None:
 def cli(ctx: click.Context, debug: bool, quiet: bool) -> None:
     """Style segmentation, within-style quality drivers, new-lot placement and
     buyer briefings for wine lot tables."""
-    ctx.obj = State(quiet=quiet)
+    state = ctx.ensure_object(State)
+    # the same flags given after the command's name were set already, or are set later
+    state.quiet = state.quiet or quiet
+    state.debug = state.debug or debug
 
 
 # --------------------------------------------------------------------------- demo
 
 
 @cli.command()
-@click.option("--out", "out_dir", required=True, help="Folder to write the demo range into.")
+@click.option("--out", "out_dir", required=True, type=OUT_FOLDER,
+              help="Folder to write the demo range into.")
 @click.option("--lots", "n_lots", default=6000, show_default=True, help="Lots drawn from styles.")
 @click.option("--seed", default=7, show_default=True, help="Seed of the generator.")
 @click.option("--noise-share", default=0.0, show_default=True,
@@ -80,7 +141,8 @@ def cli(ctx: click.Context, debug: bool, quiet: bool) -> None:
               help="Faulty rows appended (each rejection reason in turn).")
 @click.option("--new", "n_new", default=50, show_default=True, help="New lots to place.")
 @click.option("--styles", default="", help="Comma-separated planted styles to draw (default all).")
-def demo(out_dir: str, n_lots: int, seed: int, noise_share: float, blank_share: float,
+@shared_options
+def demo(out_dir: Path, n_lots: int, seed: int, noise_share: float, blank_share: float,
          bad_rows: int, n_new: int, styles: str) -> None:
     """Write the invented demo range (lots, new lots and planted truth)."""
     from vinstrata.demo import RECIPES_BY_KEY, generate_demo, write_demo
@@ -103,15 +165,16 @@ def demo(out_dir: str, n_lots: int, seed: int, noise_share: float, blank_share: 
 
 
 @cli.command()
-@click.argument("lots")
-@click.option("--config", "config_path", help=CONFIG_HELP)
+@click.argument("lots", type=LOT_FILE)
+@config_option("check")
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
-@click.option("--out", "out_dir", default=None,
+@click.option("--out", "out_dir", default=None, type=OUT_FOLDER,
               help="Folder for quality_summary.csv, quality_analytes.csv and row_status.csv "
                    "(default: check_<file name>).")
+@shared_options
 @click.pass_obj
-def check(state: State, lots: str, config_path: str | None, sheet: str | None,
-          out_dir: str | None) -> None:
+def check(state: State, lots: Path, config_path: Path | None, sheet: str | None,
+          out_dir: Path | None) -> None:
     """Validate a lot table and report its data quality."""
     from vinstrata import pipeline
     from vinstrata.read import quality
@@ -119,11 +182,18 @@ def check(state: State, lots: str, config_path: str | None, sheet: str | None,
     rep = state.reporter()
     config = _config(config_path)
     out = Path(out_dir or f"check_{Path(lots).stem}")
-    with rep.stage("check: read and validate"):
-        table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
-    pipeline.note_analytes(table, config, rep)
-    _say(quality.describe(table))
-    pipeline.write_check(table, out)
+    with OutputFolder(out, "check") as folder:
+        with rep.stage("check: read and validate"):
+            table = pipeline.load(lots, config, sheet=sheet,
+                                  require_grade=bool(config.columns.grade))
+        identity = Identity(input_sha256=table.source.sha256)
+        folder.claim(identity)
+        pipeline.note_analytes(table, config, rep)
+        pipeline.warn_hints(table, rep)
+        _say(quality.describe(table))
+        with held_back():
+            written = pipeline.write_check(table, out, config)
+        folder.commit(identity, written)
     _summary(rep)
     _say(f"wrote {out}/")
 
@@ -132,28 +202,42 @@ def check(state: State, lots: str, config_path: str | None, sheet: str | None,
 
 
 @cli.command()
-@click.argument("lots")
-@click.option("--config", "config_path", help=CONFIG_HELP)
-@click.option("--out", "out_dir", required=True, help="Output folder (model/ goes inside).")
+@click.argument("lots", type=LOT_FILE)
+@config_option("segment")
+@click.option("--out", "out_dir", required=True, type=OUT_FOLDER,
+              help="Output folder (model/ goes inside).")
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
 @click.option("--seed", type=int, default=None, help="Override the config's seed.")
+@click.option("--format", "formats", type=FORMATS, default="csv", show_default=True,
+              help=FORMAT_HELP)
+@click.option("--previous", "previous_dir", type=MODEL_FOLDER, default=None, help=PREVIOUS_HELP)
+@shared_options
 @click.pass_obj
-def segment(state: State, lots: str, config_path: str | None, out_dir: str, sheet: str | None,
-            seed: int | None) -> None:
+def segment(state: State, lots: Path, config_path: Path | None, out_dir: Path,
+            sheet: str | None, seed: int | None, formats: str,
+            previous_dir: Path | None) -> None:
     """Segment a range into chemistry-based styles; writes lot_styles.csv, styles.csv, model/."""
     from vinstrata import pipeline
 
     rep = state.reporter()
     config = _config(config_path, seed)
     out = Path(out_dir)
-    with rep.stage("check: read and validate"):
-        table = pipeline.load(lots, config, sheet=sheet, require_grade=bool(config.columns.grade))
-    pipeline.note_analytes(table, config, rep)
-    pipeline.warn_rejections(table, rep)
-    with rep.stage("segment: transform, UMAP, HDBSCAN"):
-        model = pipeline.segment(table, config, rep)
-    pipeline.write_check(table, out)
-    pipeline.write_segment(model, out)
+    previous = _previous(previous_dir)  # read first: it may be the model this fit replaces
+    with OutputFolder(out, "segment") as folder:
+        with rep.stage("check: read and validate"):
+            table = pipeline.load(lots, config, sheet=sheet,
+                                  require_grade=bool(config.columns.grade))
+        pipeline.note_analytes(table, config, rep)
+        pipeline.warn_rejections(table, rep)
+        with rep.stage("segment: transform, UMAP, HDBSCAN"):
+            model = pipeline.segment(table, config, rep)
+        if previous is not None:
+            with rep.stage("segment: styles matched to the previous model"):
+                model = pipeline.match_previous(model, previous, rep)
+        with held_back():  # the tables and the model change together
+            written = [*pipeline.write_check(table, out, config),
+                       *pipeline.write_segment(model, out, config, formats)]
+        folder.commit(pipeline.run_identity(model, out / "model"), written)
     _say(pipeline.styles_text(model))
     _summary(rep)
     _say(f"wrote {out}/ (model in {out / 'model'})")
@@ -163,22 +247,29 @@ def segment(state: State, lots: str, config_path: str | None, out_dir: str, shee
 
 
 @cli.command()
-@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
-@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
-@click.option("--out", "out_dir", required=True, help="Output folder.")
+@click.option("--model", "model_dir", required=True, type=MODEL_FOLDER,
+              help="The model/ folder written by segment.")
+@config_option("profile", CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_dir", required=True, type=OUT_FOLDER, help="Output folder.")
+@shared_options
 @click.pass_obj
-def profile(state: State, model_dir: str, config_path: str | None, out_dir: str) -> None:
+def profile(state: State, model_dir: Path, config_path: Path | None, out_dir: Path) -> None:
     """Profile each style against its grade bands; writes drivers, thresholds, contrasts."""
     from vinstrata import pipeline
     from vinstrata.profile.drivers import driver_summary
     from vinstrata.segment.model import load_model
 
     rep = state.reporter()
-    model = load_model(model_dir)
-    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
-    with rep.stage("profile: effect sizes, bootstrap, thresholds"):
-        profiles = pipeline.profile(model, config, rep)
-    pipeline.write_profile(profiles, out_dir)
+    with OutputFolder(out_dir, "profile") as folder:
+        model = load_model(model_dir)
+        identity = pipeline.run_identity(model)
+        folder.claim(identity)
+        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+        with rep.stage("profile: effect sizes, bootstrap, thresholds"):
+            profiles = pipeline.profile(model, config, rep)
+        with held_back():
+            written = pipeline.write_profile(profiles, out_dir, config)
+        folder.commit(identity, written)
     for line in driver_summary(profiles, model, config.report.top_drivers):
         _say(line)
     for sentence in profiles.contrasts["sentence"].head(12):
@@ -191,31 +282,40 @@ def profile(state: State, model_dir: str, config_path: str | None, out_dir: str)
 
 
 @cli.command()
-@click.argument("new")
-@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
-@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
-@click.option("--out", "out_dir", required=True, help="Output folder.")
+@click.argument("new", type=LOT_FILE)
+@click.option("--model", "model_dir", required=True, type=MODEL_FOLDER,
+              help="The model/ folder written by segment.")
+@config_option("place", CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_dir", required=True, type=OUT_FOLDER, help="Output folder.")
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
+@click.option("--format", "formats", type=FORMATS, default="csv", show_default=True,
+              help=FORMAT_HELP)
+@shared_options
 @click.pass_obj
-def place(state: State, new: str, model_dir: str, config_path: str | None, out_dir: str,
-          sheet: str | None) -> None:
+def place(state: State, new: Path, model_dir: Path, config_path: Path | None, out_dir: Path,
+          sheet: str | None, formats: str) -> None:
     """Place new lots against their styles; writes placements.csv and details."""
     from vinstrata import pipeline
     from vinstrata.place.text import describe
     from vinstrata.segment.model import load_model
 
     rep = state.reporter()
-    model = load_model(model_dir)
-    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
-    with rep.stage("check: read and validate the new lots"):
-        table = pipeline.load_new(new, model, config, sheet=sheet)
-    pipeline.warn_rejections(table, rep, where="placements.csv")
-    with rep.stage("profile: the model's styles, for their driver cuts"):
-        profiles = (pipeline.profile(model, config, for_placing=True) if model.has_grade
-                    else None)
-    with rep.stage("place: new lots against their styles"):
-        placements = pipeline.place(table, model, profiles, config, rep)
-    pipeline.write_place(placements, out_dir)
+    with OutputFolder(out_dir, "place") as folder:
+        model = load_model(model_dir)
+        identity = pipeline.run_identity(model)
+        folder.claim(identity)
+        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+        with rep.stage("check: read and validate the new lots"):
+            table = pipeline.load_new(new, model, config, sheet=sheet)
+        pipeline.warn_rejections(table, rep, where="placements.csv")
+        with rep.stage("profile: the model's styles, for their driver cuts"):
+            profiles = (pipeline.profile(model, config, for_placing=True) if model.has_grade
+                        else None)
+        with rep.stage("place: new lots against their styles"):
+            placements = pipeline.place(table, model, profiles, config, rep)
+        with held_back():
+            written = pipeline.write_place(placements, out_dir, config, formats)
+        folder.commit(identity, written)
     _say(describe(placements))
     _summary(rep)
     _say(f"wrote {out_dir}/")
@@ -225,66 +325,114 @@ def place(state: State, new: str, model_dir: str, config_path: str | None, out_d
 
 
 @cli.command()
-@click.option("--model", "model_dir", required=True, help="The model/ folder written by segment.")
-@click.option("--profiles", "profiles_dir", default=None,
+@click.option("--model", "model_dir", required=True, type=MODEL_FOLDER,
+              help="The model/ folder written by segment.")
+@click.option("--profiles", "profiles_dir", default=None, type=RESULT_FOLDER,
               help="Folder with drivers.csv, thresholds.csv and contrasts.csv (from profile); "
                    "computed from the model when left out and the lots have grades.")
-@click.option("--placements", "placements_dir", default=None,
+@click.option("--placements", "placements_dir", default=None, type=RESULT_FOLDER,
               help="Folder written by place, to add the new-lot pages.")
-@click.option("--config", "config_path", help=CONFIG_HELP + " Default: the model's own.")
-@click.option("--out", "out_pdf", required=True, help="The PDF to write.")
+@config_option("brief", CONFIG_HELP + " Default: the model's own.")
+@click.option("--out", "out_pdf", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              help="The PDF to write.")
+@click.option("--previous", "previous_dir", type=MODEL_FOLDER, default=None,
+              help="The previous model/ the model's styles were matched to (segment "
+                   "--previous): adds the page 'since the previous model'.")
+@shared_options
 @click.pass_obj
-def brief(state: State, model_dir: str, profiles_dir: str | None, placements_dir: str | None,
-          config_path: str | None, out_pdf: str) -> None:
+def brief(state: State, model_dir: Path, profiles_dir: Path | None, placements_dir: Path | None,
+          config_path: Path | None, out_pdf: Path, previous_dir: Path | None) -> None:
     """Write the buyer briefing PDF."""
     from vinstrata import pipeline
     from vinstrata.segment.model import load_model
 
     rep = state.reporter()
-    model = load_model(model_dir)
-    config = pipeline.model_config(model, load_config(config_path) if config_path else None)
-    if profiles_dir:
-        profiles = pipeline.read_profile(profiles_dir)
-    else:
-        profiles = pipeline.profile(model, config) if model.has_grade else None
-    placements = pipeline.read_place(placements_dir) if placements_dir else None
-    with rep.stage("brief: the PDF"):
-        path = pipeline.brief(out_pdf, model, profiles, placements, config)
+    # the PDF is one file among others: brief records it and never removes anything
+    with OutputFolder(Path(out_pdf).parent, "brief") as folder:
+        model = load_model(model_dir)
+        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+        if profiles_dir:
+            profiles = pipeline.read_profile(profiles_dir)
+        else:
+            profiles = pipeline.profile(model, config) if model.has_grade else None
+        placements = pipeline.read_place(placements_dir) if placements_dir else None
+        previous = _previous(previous_dir)
+        with rep.stage("brief: the PDF"):
+            path = pipeline.brief(out_pdf, model, profiles, placements, config,
+                                  previous=previous)
+        folder.commit(pipeline.run_identity(model), [path], replace="none")
     _summary(rep)
     _say(f"wrote {path}")
+
+
+# --------------------------------------------------------------------------- name
+
+
+@cli.command("name")
+@click.option("--model", "model_dir", required=True, type=MODEL_FOLDER,
+              help="The model/ folder written by segment.")
+@click.argument("style")
+@click.argument("new_name", metavar="NAME")
+@shared_options
+@click.pass_obj
+def name_command(state: State, model_dir: Path, style: str, new_name: str) -> None:
+    """Give a style a name of your own, kept in the model.
+
+    STYLE is its id (S1 ...), NAME the name ("" gives it its generated name back).
+    styles.csv, lot_styles.csv, placements and the briefing show it as style_name,
+    the generated name stays beside it (generated_name), and a refit with
+    --previous keeps it on the matched style."""
+    from vinstrata import pipeline
+
+    rep = state.reporter()
+    model = pipeline.name_style(model_dir, style, new_name, rep)
+    _say(pipeline.styles_text(model))
+    _summary(rep)
+    _say(f"wrote {model_dir}")
 
 
 # --------------------------------------------------------------------------- run
 
 
 @cli.command()
-@click.argument("lots", required=False)
-@click.option("--new", "new_lots", default=None, help="New lots to place.")
-@click.option("--config", "config_path", help=CONFIG_HELP)
-@click.option("--out", "out_dir", default=None,
+@click.argument("lots", required=False, type=LOT_FILE)
+@click.option("--new", "new_lots", default=None, type=LOT_FILE, help="New lots to place.")
+@config_option("run")
+@click.option("--out", "out_dir", default=None, type=OUT_FOLDER,
               help="Output folder (default: a new vinstrata-run-N folder here).")
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
 @click.option("--seed", type=int, default=None, help="Override the config's seed.")
+@click.option("--format", "formats", type=FORMATS, default="csv", show_default=True,
+              help=FORMAT_HELP)
+@click.option("--previous", "previous_dir", type=MODEL_FOLDER, default=None, help=PREVIOUS_HELP)
+@shared_options
 @click.pass_obj
-def run(state: State, lots: str | None, new_lots: str | None, config_path: str | None,
-        out_dir: str | None, sheet: str | None, seed: int | None) -> None:
+def run(state: State, lots: Path | None, new_lots: Path | None, config_path: Path | None,
+        out_dir: Path | None, sheet: str | None, seed: int | None, formats: str,
+        previous_dir: Path | None) -> None:
     """Check, segment, profile, place and brief in one go.
 
     With no LOTS it runs on the shipped demo range and its new lots."""
     from vinstrata import pipeline
 
     rep = state.reporter()
+    if lots is None and new_lots is not None:
+        raise InputError("--new needs LOTS too (the demo range brings its own new lots)")
+    config = _config(config_path, seed, fallback="demo" if lots is None else "default")
+    previous = _previous(previous_dir)
     out = Path(out_dir) if out_dir else pipeline.fresh_folder(Path.cwd())
-    if lots is None:
-        if new_lots is not None:
-            raise InputError("--new needs LOTS too (the demo range brings its own new lots)")
-        with rep.stage("demo: write the range of the invented Quillory Vale Wine Co."):
-            lots, new_lots = pipeline.demo_inputs(out / "input")
-        config = _config(config_path, seed, fallback="demo")
-    else:
-        config = _config(config_path, seed)
-    result = pipeline.run_all(lots, new_lots, config, out, rep, sheet=sheet)
+    with OutputFolder(out, "run") as folder:
+        if lots is None:
+            with rep.stage("demo: write the range of the invented Quillory Vale Wine Co."):
+                lots, new_lots = pipeline.demo_inputs(out / "input")
+        result = pipeline.run_all(lots, new_lots, config, out, rep, sheet=sheet, folder=folder,
+                                  formats=formats, previous=previous)
     _say(pipeline.styles_text(result.model))
+    if result.profiles is not None:  # direct drivers first, passengers named as such
+        from vinstrata.profile.drivers import driver_summary
+
+        for line in driver_summary(result.profiles, result.model, config.report.top_drivers):
+            _say(line)
     if result.placements is not None:
         from vinstrata.place.text import describe
 
@@ -293,15 +441,40 @@ def run(state: State, lots: str | None, new_lots: str | None, config_path: str |
     _say(f"wrote {out}/ — briefing: {result.briefing}")
 
 
+# --------------------------------------------------------------------------- environment
+
+
+def _name_environment_variables(group: click.Group) -> None:
+    """Name each command option's variable after the option, ``VINSTRATA_SEGMENT_OUT`` for
+    ``segment --out`` (click's automatic names follow the Python parameter, ``..._OUT_DIR``).
+
+    Options with a variable of their own (``--config``) keep it; the group's own
+    options keep click's automatic ``VINSTRATA_QUIET`` and ``VINSTRATA_DEBUG``.
+    """
+    for command_name, command in group.commands.items():
+        for param in command.params:
+            if not isinstance(param, click.Option) or param.envvar is not None:
+                continue
+            if param.name == "help":
+                continue
+            option = max(param.opts, key=len).lstrip("-").replace("-", "_").upper()
+            param.envvar = f"{ENV_PREFIX}_{command_name.upper()}_{option}"
+
+
+_name_environment_variables(cli)
+
+
 # --------------------------------------------------------------------------- entry point
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run the CLI; returns the exit code (0 ok, 1 internal fault, 2 bad input)."""
     args = sys.argv[1:] if argv is None else argv
-    debug = "--debug" in args
+    state = State()
     try:
-        cli.main(args=args, prog_name="vinstrata", standalone_mode=False)
+        # options also come from VINSTRATA_<COMMAND>_<OPTION> (and --config from VINSTRATA_CONFIG)
+        cli.main(args=args, prog_name="vinstrata", standalone_mode=False, obj=state,
+                 auto_envvar_prefix=ENV_PREFIX)
     except InputError as exc:
         click.echo(f"error: {exc}", err=True)
         return 2
@@ -320,7 +493,7 @@ def main(argv: list[str] | None = None) -> int:
         click.echo("internal error: out of memory", err=True)
         return 1
     except Exception as exc:  # an internal fault: short message, traceback on request
-        if debug:
+        if state.debug or "--debug" in args:
             traceback.print_exc()
         else:
             click.echo(f"internal error: {exc.__class__.__name__}: {exc} "

@@ -5,6 +5,11 @@ module turns it into frozen dataclasses and refuses, in one line naming the
 file, the key and what was expected, a config that lacks a required key, has
 an unknown key or holds a value of the wrong type. Every other module reads
 settings only from a :class:`Config`.
+
+Each key is declared once, as a dataclass field made by :func:`setting`: its
+default and the check its value must pass sit together, and :data:`SCHEMA`,
+the parser and the test keeping ``configs/default.toml`` in step are derived
+from the fields.
 """
 
 from __future__ import annotations
@@ -16,7 +21,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import Any, NamedTuple, get_type_hints
 
 from vinstrata.errors import InputError
 
@@ -26,172 +31,6 @@ else:  # pragma: no cover - exercised on Python 3.10 only
     import tomli as tomllib
 
 AUTO = "auto"
-
-
-# --------------------------------------------------------------------------- sections
-
-
-@dataclass(frozen=True)
-class Columns:
-    """Which file columns hold what (``[columns]``)."""
-
-    lot_id: str
-    grade: str = ""
-    analytes: tuple[str, ...] = ()
-    passthrough: tuple[str, ...] = ()
-
-
-@dataclass(frozen=True)
-class Bands:
-    """Grade bands (``[bands]``): global cuts or per-style quantiles."""
-
-    cuts: tuple[float, ...] = (14.0, 16.0)
-    labels: tuple[str, ...] = ("bottom", "middle", "top")
-    mode: str = "global"
-    quantiles: tuple[float, ...] = (0.2, 0.8)
-
-
-@dataclass(frozen=True)
-class Ingest:
-    """How files are read and cells parsed (``[ingest]``)."""
-
-    delimiter: str = AUTO
-    decimal: str = AUTO
-    sheet: str = ""
-    censored: str = "half_limit"
-    max_missing_share: float = 0.25
-    duplicate_ids: str = "keep_first"
-    max_unpacked_mb: int = 512
-    max_cells: int = 50_000_000
-    max_columns: int = 5000
-    max_cell_kb: int = 64
-
-
-@dataclass(frozen=True)
-class Derived:
-    """Analytes computed from others (``[derived]``), opt-in."""
-
-    add: tuple[str, ...] = ()
-    so2_pka: float = 1.81
-
-
-@dataclass(frozen=True)
-class Segment:
-    """Transform, clustering space and HDBSCAN settings (``[segment]``)."""
-
-    space: str = "umap"
-    components: int = 8
-    neighbours: int = 15
-    epochs: int | str = AUTO
-    min_cluster_size: int | str = AUTO
-    min_samples: int | str = AUTO
-    sweep: tuple[float, ...] = (0.005, 0.01, 0.02, 0.035, 0.05, 0.08)
-    merge_valley: float = 0.5
-    min_style_lots: int = 30
-    outlier_cutoff: float = 3.5
-    skew_threshold: float = 1.0
-    transforms: Mapping[str, str] = field(default_factory=dict)
-    impute_neighbours: int = 5
-    map_min_dist: float = 0.1
-
-
-@dataclass(frozen=True)
-class Profile:
-    """Within-style driver statistics (``[profile]``)."""
-
-    bootstrap: int = 2000
-    min_band_lots: int = 10
-    fdr: float = 0.05
-    ci_level: float = 0.95
-    target_quantiles: tuple[float, ...] = (0.1, 0.9)
-    include_unassigned: bool = False
-
-
-@dataclass(frozen=True)
-class Place:
-    """Placing new lots (``[place]``)."""
-
-    neighbours: int = 5
-    band_neighbours: int = 15
-    atypical_percentile: float = 95.0
-    z_flag: float = 3.0
-
-
-@dataclass(frozen=True)
-class LimitSet:
-    """One market's screening limits; see :mod:`vinstrata.place.limits` for sources."""
-
-    va_max_red: float
-    va_max_white_rose: float
-    so2_max_red_dry: float
-    so2_max_red_sweet: float
-    so2_max_white_rose_dry: float
-    so2_max_white_rose_sweet: float
-    sweet_from_sugar: float
-    sweet_inclusive: bool
-    sulfite_label_from: float
-    sulfite_label_inclusive: bool
-
-
-@dataclass(frozen=True)
-class Limits:
-    """Screening limits (``[limits]``) and per-market overrides."""
-
-    market: str = "eu"
-    colour_column: str = ""
-    default_colour: str = ""
-    molecular_so2_min_red: float = 0.5
-    molecular_so2_min_white_rose: float = 0.8
-    overrides: Mapping[str, Mapping[str, float | bool]] = field(default_factory=dict)
-
-
-@dataclass(frozen=True)
-class Report:
-    """Briefing settings (``[report]``)."""
-
-    title: str = "Range briefing"
-    producer: str = ""
-    top_drivers: int = 3
-
-
-@dataclass(frozen=True)
-class Output:
-    """How output files are written (``[output]``)."""
-
-    spreadsheet_safe: bool = True
-
-
-@dataclass(frozen=True)
-class Config:
-    """A whole validated configuration."""
-
-    columns: Columns
-    units: Mapping[str, str] = field(default_factory=dict)
-    kinds: Mapping[str, str] = field(default_factory=dict)
-    bounds: Mapping[str, tuple[float, float]] = field(default_factory=dict)
-    bands: Bands = field(default_factory=Bands)
-    ingest: Ingest = field(default_factory=Ingest)
-    derived: Derived = field(default_factory=Derived)
-    segment: Segment = field(default_factory=Segment)
-    profile: Profile = field(default_factory=Profile)
-    place: Place = field(default_factory=Place)
-    limits: Limits = field(default_factory=Limits)
-    report: Report = field(default_factory=Report)
-    output: Output = field(default_factory=Output)
-    seed: int = 20261201
-    source: str = "<defaults>"
-
-    def to_dict(self) -> dict[str, Any]:
-        """Plain-data form, stored with every model and printed in the briefing."""
-        return _plain(dataclasses.asdict(self))
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, Mapping):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_plain(v) for v in value]
-    return value
 
 
 # --------------------------------------------------------------------------- value checks
@@ -316,119 +155,294 @@ def _pair(value: Any) -> tuple[float, float]:
     return (low, high)
 
 
-# --------------------------------------------------------------------------- schema
-
 _NAME = _string
 _NAMES = _list_of(_string, "strings")
+_LIMIT = _positive(_number, 0.0)
 
-SCHEMA: dict[str, tuple[type, dict[str, Check], set[str]]] = {
-    "columns": (
-        Columns,
-        {"lot_id": _NAME, "grade": _NAME, "analytes": _NAMES, "passthrough": _NAMES},
-        {"lot_id"},
-    ),
-    "bands": (
-        Bands,
-        {
-            "cuts": _list_of(_number, "numbers", 1),
-            "labels": _list_of(_string, "strings", 2),
-            "mode": _choice("global", "style_quantile"),
-            "quantiles": _list_of(_between(_number, 0.0, 1.0), "numbers between 0 and 1", 1),
-        },
-        set(),
-    ),
-    "ingest": (
-        Ingest,
-        {
-            "delimiter": _choice(AUTO, ",", ";", "\t", "tab"),
-            "decimal": _choice(AUTO, ".", ","),
-            "sheet": _string,
-            "censored": _choice("half_limit", "limit"),
-            "max_missing_share": _between(_number, 0.0, 1.0),
-            "duplicate_ids": _choice("keep_first", "reject_all"),
-            "max_unpacked_mb": _between(_integer, 1, 1_000_000),
-            "max_cells": _between(_integer, 1000, 10**12),
-            "max_columns": _between(_integer, 2, 10**7),
-            "max_cell_kb": _between(_integer, 1, 10**6),
-        },
-        set(),
-    ),
-    "derived": (
-        Derived,
-        {
-            "add": _list_of(_choice("bound_so2", "molecular_so2", "total_acidity"),
-                            'names among "bound_so2", "molecular_so2", "total_acidity"'),
-            "so2_pka": _between(_number, 1.0, 3.0),
-        },
-        set(),
-    ),
-    "segment": (
-        Segment,
-        {
-            "space": _choice("umap", "chemistry"),
-            "components": _between(_integer, 2, 50),
-            "neighbours": _between(_integer, 2, 200),
-            "epochs": _auto_or(_between(_integer, 10, 5000)),
-            "min_cluster_size": _auto_or(_positive(_integer, 2)),
-            "min_samples": _auto_or(_positive(_integer, 1)),
-            "sweep": _list_of(_between(_number, 0.0001, 0.5), "fractions between 0 and 0.5", 1),
-            "merge_valley": _between(_number, 0.0, 1.0),
-            "min_style_lots": _positive(_integer, 1),
-            "outlier_cutoff": _positive(_number, 0.0),
-            "skew_threshold": _positive(_number, 0.0),
-            "transforms": _table_of(_choice(AUTO, "log", "none"), '"auto", "log" or "none"'),
-            "impute_neighbours": _between(_integer, 1, 100),
-            "map_min_dist": _between(_number, 0.0, 1.0),
-        },
-        set(),
-    ),
-    "profile": (
-        Profile,
-        {
-            "bootstrap": _between(_integer, 100, 100000),
-            "min_band_lots": _positive(_integer, 2),
-            "fdr": _between(_number, 0.0001, 0.5),
-            "ci_level": _between(_number, 0.5, 0.999),
-            "target_quantiles": _list_of(_between(_number, 0.0, 1.0), "numbers between 0 and 1", 2),
-            "include_unassigned": _boolean,
-        },
-        set(),
-    ),
-    "place": (
-        Place,
-        {
-            "neighbours": _between(_integer, 1, 100),
-            "band_neighbours": _between(_integer, 1, 500),
-            "atypical_percentile": _between(_number, 50.0, 100.0),
-            "z_flag": _positive(_number, 0.5),
-        },
-        set(),
-    ),
-    "limits": (
-        Limits,
-        {
-            "market": _choice("eu", "oiv", "us", "none"),
-            "colour_column": _string,
-            "default_colour": _choice("", "red", "white", "rose"),
-            "molecular_so2_min_red": _positive(_number, 0.0),
-            "molecular_so2_min_white_rose": _positive(_number, 0.0),
-        },
-        set(),
-    ),
-    "report": (
-        Report,
-        {"title": _string, "producer": _string, "top_drivers": _between(_integer, 1, 10)},
-        set(),
-    ),
-    "output": (Output, {"spreadsheet_safe": _boolean}, set()),
-}
 
-_MARKETS = ("eu", "oiv", "us")
-_LIMIT_KEYS: dict[str, Check] = {
-    f.name: (_boolean if f.type in ("bool", bool) else _positive(_number, 0.0))
-    for f in dataclasses.fields(LimitSet)
-}
-_TOP_TABLES = {"units": _string, "kinds": _string, "bounds": _pair}
+# --------------------------------------------------------------------------- declaring a key
+
+REQUIRED: Any = dataclasses.MISSING
+"""The default of a key the config must give (no default)."""
+
+
+def setting(default: Any, check: Check) -> Any:
+    """A config key: a dataclass field holding its default and the check of its value.
+
+    Parameters
+    ----------
+    default : object
+        The value when the config leaves the key out; :data:`REQUIRED` for a key
+        the config must give. A dict default is copied for every instance.
+    check : callable
+        Takes the value as parsed from TOML and returns it in its stored form
+        (lists become tuples, integers floats where a number is expected), or
+        raises ``_Wrong`` saying what was expected.
+
+    Returns
+    -------
+    dataclasses.Field
+    """
+    metadata = {"check": check}
+    if isinstance(default, dict):
+        return dataclasses.field(default_factory=lambda: dict(default), metadata=metadata)
+    return dataclasses.field(default=default, metadata=metadata)
+
+
+def _analyte_table(check: Check) -> Any:
+    """A top-level table keyed by analyte (``[units]``); an error names the analyte's key."""
+    return dataclasses.field(default_factory=dict, metadata={"each": check})
+
+
+def _market_tables(cls: type, markets: tuple[str, ...]) -> Any:
+    """``[<section>.<market>]`` tables, each holding some of the keys of ``cls``."""
+    return dataclasses.field(default_factory=dict, metadata={"markets": markets, "keys": cls})
+
+
+# --------------------------------------------------------------------------- sections
+
+
+@dataclass(frozen=True)
+class Columns:
+    """Which file columns hold what (``[columns]``)."""
+
+    lot_id: str = setting(REQUIRED, _NAME)
+    grade: str = setting("", _NAME)
+    analytes: tuple[str, ...] = setting((), _NAMES)
+    passthrough: tuple[str, ...] = setting((), _NAMES)
+
+
+@dataclass(frozen=True)
+class Bands:
+    """Grade bands (``[bands]``): global cuts or per-style quantiles."""
+
+    cuts: tuple[float, ...] = setting((14.0, 16.0), _list_of(_number, "numbers", 1))
+    labels: tuple[str, ...] = setting(("bottom", "middle", "top"),
+                                      _list_of(_string, "strings", 2))
+    mode: str = setting("global", _choice("global", "style_quantile"))
+    quantiles: tuple[float, ...] = setting(
+        (0.2, 0.8), _list_of(_between(_number, 0.0, 1.0), "numbers between 0 and 1", 1))
+
+
+@dataclass(frozen=True)
+class Ingest:
+    """How files are read and cells parsed (``[ingest]``)."""
+
+    delimiter: str = setting(AUTO, _choice(AUTO, ",", ";", "\t", "tab"))
+    decimal: str = setting(AUTO, _choice(AUTO, ".", ","))
+    sheet: str = setting("", _string)
+    censored: str = setting("half_limit", _choice("half_limit", "limit"))
+    max_missing_share: float = setting(0.25, _between(_number, 0.0, 1.0))
+    duplicate_ids: str = setting("keep_first", _choice("keep_first", "reject_all"))
+    max_unpacked_mb: int = setting(512, _between(_integer, 1, 1_000_000))
+    max_cells: int = setting(50_000_000, _between(_integer, 1000, 10**12))
+    max_columns: int = setting(5000, _between(_integer, 2, 10**7))
+    max_cell_kb: int = setting(64, _between(_integer, 1, 10**6))
+
+
+class _Refused(_Wrong):
+    """A value refused with its own explanation instead of "expected ..."."""
+
+
+_DERIVED_NAMES = _list_of(_choice("bound_so2", "molecular_so2"),
+                          'names among "bound_so2", "molecular_so2"')
+
+
+def _derived_names(value: Any) -> tuple[str, ...]:
+    # total acidity was once derived (fixed + volatile); the name is the trade's for
+    # titratable acidity, which labs report directly, so a config asking for it is told why
+    if isinstance(value, list) and "total_acidity" in value:
+        raise _Refused('"total_acidity" is no longer derived: labs report titratable acidity '
+                       'directly, and "total acidity" is the trade\'s name for titratable '
+                       "acidity (name the column titratable_acidity)")
+    return _DERIVED_NAMES(value)
+
+
+@dataclass(frozen=True)
+class Derived:
+    """Analytes computed from others (``[derived]``), opt-in."""
+
+    add: tuple[str, ...] = setting((), _derived_names)
+    so2_pka: float = setting(1.81, _between(_number, 1.0, 3.0))
+
+
+@dataclass(frozen=True)
+class Segment:
+    """Transform, clustering space and HDBSCAN settings (``[segment]``)."""
+
+    space: str = setting("umap", _choice("umap", "chemistry"))
+    components: int = setting(8, _between(_integer, 2, 50))
+    neighbours: int = setting(15, _between(_integer, 2, 200))
+    epochs: int | str = setting(AUTO, _auto_or(_between(_integer, 10, 5000)))
+    min_cluster_size: int | str = setting(AUTO, _auto_or(_positive(_integer, 2)))
+    min_samples: int | str = setting(AUTO, _auto_or(_positive(_integer, 1)))
+    sweep: tuple[float, ...] = setting(
+        (0.005, 0.01, 0.02, 0.035, 0.05, 0.08),
+        _list_of(_between(_number, 0.0001, 0.5), "fractions between 0 and 0.5", 1))
+    merge_valley: float = setting(0.5, _between(_number, 0.0, 1.0))
+    min_style_lots: int = setting(30, _positive(_integer, 1))
+    outlier_cutoff: float = setting(3.5, _positive(_number, 0.0))
+    skew_threshold: float = setting(1.0, _positive(_number, 0.0))
+    transforms: Mapping[str, str] = setting(
+        {}, _table_of(_choice(AUTO, "log", "none"), '"auto", "log" or "none"'))
+    impute_neighbours: int = setting(5, _between(_integer, 1, 100))
+    map_min_dist: float = setting(0.1, _between(_number, 0.0, 1.0))
+
+
+@dataclass(frozen=True)
+class Profile:
+    """Within-style driver statistics (``[profile]``)."""
+
+    bootstrap: int = setting(2000, _between(_integer, 100, 100000))
+    min_band_lots: int = setting(10, _positive(_integer, 2))
+    fdr: float = setting(0.05, _between(_number, 0.0001, 0.5))
+    ci_level: float = setting(0.95, _between(_number, 0.5, 0.999))
+    target_quantiles: tuple[float, ...] = setting(
+        (0.1, 0.9), _list_of(_between(_number, 0.0, 1.0), "numbers between 0 and 1", 2))
+    include_unassigned: bool = setting(False, _boolean)
+
+
+@dataclass(frozen=True)
+class Place:
+    """Placing new lots (``[place]``)."""
+
+    neighbours: int = setting(5, _between(_integer, 1, 100))
+    band_neighbours: int = setting(15, _between(_integer, 1, 500))
+    atypical_percentile: float = setting(95.0, _between(_number, 50.0, 100.0))
+    z_flag: float = setting(3.0, _positive(_number, 0.5))
+
+
+@dataclass(frozen=True)
+class LimitSet:
+    """One market's screening limits; see :mod:`vinstrata.place.limits` for sources.
+
+    Every value is required of a whole set (``limits.MARKETS``); a
+    ``[limits.<market>]`` table of a config overrides any of them.
+    """
+
+    va_max_red: float = setting(REQUIRED, _LIMIT)
+    va_max_white_rose: float = setting(REQUIRED, _LIMIT)
+    so2_max_red_dry: float = setting(REQUIRED, _LIMIT)
+    so2_max_red_sweet: float = setting(REQUIRED, _LIMIT)
+    so2_max_white_rose_dry: float = setting(REQUIRED, _LIMIT)
+    so2_max_white_rose_sweet: float = setting(REQUIRED, _LIMIT)
+    sweet_from_sugar: float = setting(REQUIRED, _LIMIT)
+    sweet_inclusive: bool = setting(REQUIRED, _boolean)
+    sulfite_label_from: float = setting(REQUIRED, _LIMIT)
+    sulfite_label_inclusive: bool = setting(REQUIRED, _boolean)
+
+
+@dataclass(frozen=True)
+class Limits:
+    """Screening limits (``[limits]``) and per-market overrides."""
+
+    market: str = setting("eu", _choice("eu", "oiv", "us", "none"))
+    colour_column: str = setting("", _string)
+    default_colour: str = setting("", _choice("", "red", "white", "rose"))
+    molecular_so2_min_red: float = setting(0.5, _positive(_number, 0.0))
+    molecular_so2_min_white_rose: float = setting(0.8, _positive(_number, 0.0))
+    overrides: Mapping[str, Mapping[str, float | bool]] = _market_tables(
+        LimitSet, ("eu", "oiv", "us"))
+
+
+@dataclass(frozen=True)
+class Report:
+    """Briefing settings (``[report]``)."""
+
+    title: str = setting("Range briefing", _string)
+    producer: str = setting("", _string)
+    top_drivers: int = setting(3, _between(_integer, 1, 10))
+
+
+@dataclass(frozen=True)
+class Output:
+    """How output files are written (``[output]``)."""
+
+    spreadsheet_safe: bool = setting(True, _boolean)
+
+
+@dataclass(frozen=True)
+class Config:
+    """A whole validated configuration."""
+
+    columns: Columns
+    units: Mapping[str, str] = _analyte_table(_string)
+    kinds: Mapping[str, str] = _analyte_table(_string)
+    bounds: Mapping[str, tuple[float, float]] = _analyte_table(_pair)
+    bands: Bands = field(default_factory=Bands)
+    ingest: Ingest = field(default_factory=Ingest)
+    derived: Derived = field(default_factory=Derived)
+    segment: Segment = field(default_factory=Segment)
+    profile: Profile = field(default_factory=Profile)
+    place: Place = field(default_factory=Place)
+    limits: Limits = field(default_factory=Limits)
+    report: Report = field(default_factory=Report)
+    output: Output = field(default_factory=Output)
+    seed: int = setting(20261201, _between(_integer, 0, 2**32 - 1))
+    source: str = "<defaults>"  # not a key: the file name used in messages
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain-data form, stored with every model and printed in the briefing."""
+        return _plain(dataclasses.asdict(self))
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, Mapping):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    return value
+
+
+# --------------------------------------------------------------------------- schema
+
+
+class Section(NamedTuple):
+    """The keys of one ``[section]``, read off its dataclass."""
+
+    cls: type
+    checks: dict[str, Check]
+    required: frozenset[str]
+
+
+def _required(f: dataclasses.Field[Any]) -> bool:
+    return f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING
+
+
+def section_of(cls: type) -> Section:
+    """The keys of the dataclass ``cls``: its fields made by :func:`setting`.
+
+    Parameters
+    ----------
+    cls : type
+        A section dataclass, e.g. :class:`Segment`.
+
+    Returns
+    -------
+    Section
+        The class, the check of each key and the keys without a default.
+    """
+    keyed = [f for f in dataclasses.fields(cls) if "check" in f.metadata]
+    return Section(cls, {f.name: f.metadata["check"] for f in keyed},
+                   frozenset(f.name for f in keyed if _required(f)))
+
+
+def _top_keys() -> tuple[dict[str, dataclasses.Field[Any]], dict[str, Section]]:
+    hints = get_type_hints(Config)
+    keys: dict[str, dataclasses.Field[Any]] = {}
+    sections: dict[str, Section] = {}
+    for f in dataclasses.fields(Config):
+        if dataclasses.is_dataclass(hints[f.name]):
+            sections[f.name] = section_of(hints[f.name])
+        elif not f.metadata:
+            continue  # ``source``: where the config came from, not a key
+        keys[f.name] = f
+    return keys, sections
+
+
+# _TOP: every top-level key (the sections, the analyte tables, seed) by name;
+# SCHEMA: section name -> its dataclass, the check of each key and the required keys
+_TOP, SCHEMA = _top_keys()
 
 
 def _fail(source: str, key: str, expected: str, value: Any = None, got: bool = True) -> InputError:
@@ -436,49 +450,65 @@ def _fail(source: str, key: str, expected: str, value: Any = None, got: bool = T
     return InputError(f"{source}: key '{key}': expected {expected}{tail}")
 
 
+def _checked(source: str, key: str, check: Check, value: Any) -> Any:
+    try:
+        return check(value)
+    except _Refused as refused:
+        raise InputError(f"{source}: key '{key}': {refused}") from None
+    except _Wrong as wrong:
+        raise _fail(source, key, str(wrong), value) from None
+
+
+def _unknown(source: str, key: str, known: Mapping[str, Any]) -> InputError:
+    return InputError(f"{source}: unknown key '{key}' (known keys: {', '.join(sorted(known))})")
+
+
 def _build_section(source: str, name: str, raw: Any) -> Any:
     cls, checks, required = SCHEMA[name]
     if not isinstance(raw, dict):
         raise _fail(source, name, "a table", raw)
+    grouped = [f for f in dataclasses.fields(cls) if "markets" in f.metadata]
+    subtables = {market for f in grouped for market in f.metadata["markets"]}
     values: dict[str, Any] = {}
     for key, value in raw.items():
-        if name == "limits" and key in _MARKETS:
+        if key in subtables:
             continue
         if key not in checks:
-            known = ", ".join(sorted(checks))
-            raise InputError(f"{source}: unknown key '{name}.{key}' (known keys: {known})")
-        try:
-            values[key] = checks[key](value)
-        except _Wrong as wrong:
-            raise _fail(source, f"{name}.{key}", str(wrong), value) from None
+            raise _unknown(source, f"{name}.{key}", checks)
+        values[key] = _checked(source, f"{name}.{key}", checks[key], value)
     for key in sorted(required):
         if key not in values:
             raise _fail(source, f"{name}.{key}", "a value (this key is required)", got=False)
-    if name == "limits":
-        values["overrides"] = _limit_overrides(source, raw)
+    for f in grouped:
+        values[f.name] = _build_subtables(source, name, raw, f.metadata["markets"],
+                                          section_of(f.metadata["keys"]))
     return cls(**values)
 
 
-def _limit_overrides(source: str, raw: dict[str, Any]) -> dict[str, dict[str, Any]]:
+def _build_subtables(source: str, name: str, raw: dict[str, Any], markets: tuple[str, ...],
+                     keys: Section) -> dict[str, dict[str, Any]]:
+    # a market table overrides some of that market's values: no key is required here
     out: dict[str, dict[str, Any]] = {}
-    for market in _MARKETS:
+    for market in markets:
         table = raw.get(market)
         if table is None:
             continue
         if not isinstance(table, dict):
-            raise _fail(source, f"limits.{market}", "a table", table)
+            raise _fail(source, f"{name}.{market}", "a table", table)
         out[market] = {}
         for key, value in table.items():
-            if key not in _LIMIT_KEYS:
-                known = ", ".join(sorted(_LIMIT_KEYS))
-                raise InputError(
-                    f"{source}: unknown key 'limits.{market}.{key}' (known keys: {known})"
-                )
-            try:
-                out[market][key] = _LIMIT_KEYS[key](value)
-            except _Wrong as wrong:
-                raise _fail(source, f"limits.{market}.{key}", str(wrong), value) from None
+            if key not in keys.checks:
+                raise _unknown(source, f"{name}.{market}.{key}", keys.checks)
+            out[market][key] = _checked(source, f"{name}.{market}.{key}", keys.checks[key],
+                                        value)
     return out
+
+
+def _build_analyte_table(source: str, name: str, check: Check, raw: Any) -> dict[str, Any]:
+    if not isinstance(raw, dict):
+        raise _fail(source, name, "a table", raw)
+    return {str(key): _checked(source, f"{name}.{key}", check, value)
+            for key, value in raw.items()}
 
 
 def _cross_checks(source: str, config: Config) -> None:
@@ -533,30 +563,21 @@ def parse_config(raw: Mapping[str, Any], source: str = "<config>") -> Config:
     InputError
         On a missing required key, an unknown key or a value of the wrong type.
     """
+    for name, f in _TOP.items():
+        if _required(f) and name not in raw:
+            at_least = ", ".join(sorted(SCHEMA[name].required))
+            raise _fail(source, name, f"a [{name}] table with at least {at_least}", got=False)
     values: dict[str, Any] = {"source": source}
-    if "columns" not in raw:
-        raise _fail(source, "columns", "a [columns] table with at least lot_id", got=False)
     for key, value in raw.items():
+        if key not in _TOP:
+            raise _unknown(source, key, _TOP)
+        meta = _TOP[key].metadata
         if key in SCHEMA:
             values[key] = _build_section(source, key, value)
-        elif key in _TOP_TABLES:
-            if not isinstance(value, dict):
-                raise _fail(source, key, "a table", value)
-            table = {}
-            for name, item in value.items():
-                try:
-                    table[str(name)] = _TOP_TABLES[key](item)
-                except _Wrong as wrong:
-                    raise _fail(source, f"{key}.{name}", str(wrong), item) from None
-            values[key] = table
-        elif key == "seed":
-            try:
-                values["seed"] = _between(_integer, 0, 2**32 - 1)(value)
-            except _Wrong as wrong:
-                raise _fail(source, "seed", str(wrong), value) from None
+        elif "each" in meta:
+            values[key] = _build_analyte_table(source, key, meta["each"], value)
         else:
-            known = ", ".join(sorted([*SCHEMA, *_TOP_TABLES, "seed"]))
-            raise InputError(f"{source}: unknown key '{key}' (known keys: {known})")
+            values[key] = _checked(source, key, meta["check"], value)
     config = Config(**values)
     _cross_checks(source, config)
     return config

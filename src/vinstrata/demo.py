@@ -12,10 +12,21 @@ Quality drivers are planted per style and differ on purpose:
   (a reversal); pooled over the range it looks reversed or flat;
 * pH lowers the grade of the crisp whites and raises it in the structured reds;
 * volatile acidity lowers the grade everywhere;
-* free and total SO2, potassium, phenolics and colour have no effect inside any
-  style; phenolics and colour differ between styles whose grades differ, so a
-  pooled analysis mistakes them for drivers;
-* density follows alcohol and sugar (physics), so it moves with them.
+* free and total SO2, potassium, phenolics and colour have no effect of their own
+  inside any style; phenolics and colour differ between styles whose grades
+  differ, so a pooled analysis mistakes them for drivers.
+
+Inside a style the analytes move together as they do in wine (:data:`LINKS`),
+and the grade acts on the planted (direct) drivers only, so an analyte linked
+to a driver rides along with it (a passenger, ``indirect`` in
+``truth_drivers.csv``, with the driver it rides on in ``rides_on``):
+
+* density follows alcohol, sugar and the non-sugar extract (physics);
+* pH follows titratable acidity (down) and potassium (up);
+* total SO2 is free SO2 plus a bound part;
+* colour intensity follows the phenolics in the reds;
+* lactic acid rises as malic acid falls where malolactic fermentation runs
+  (the barrel-aged white and both reds).
 
 The generator is pure: the same arguments give the same tables, byte for byte
 once written by :func:`write_demo`.
@@ -56,6 +67,7 @@ class StyleRecipe:
     # analyte -> ("n", mean, sd) or ("ln", median, sdlog)
     chemistry: dict[str, tuple[str, float, float]]
     drivers: dict[str, float]  # analyte -> grade points per within-style SD
+    malolactic: bool = False  # malolactic fermentation runs: lactic acid rises as malic falls
 
 
 def _n(mean: float, sd: float) -> tuple[str, float, float]:
@@ -80,7 +92,7 @@ RECIPES: tuple[StyleRecipe, ...] = (
         "ph": _n(3.40, 0.08), "free_so2": _n(28, 6), "total_so2": _n(110, 18),
         "malic_acid": _ln(0.2, 0.6), "lactic_acid": _n(1.6, 0.3), "potassium": _n(850, 100),
         "total_phenolics": _n(0.40, 0.07), "colour_intensity": _n(0.50, 0.10),
-    }, {"lactic_acid": 0.5, "alcohol": 0.45, "volatile_acidity": -0.6}),
+    }, {"lactic_acid": 0.5, "alcohol": 0.45, "volatile_acidity": -0.6}, malolactic=True),
     StyleRecipe("rose", "dry rosé", "rose", 900 / 6000, 14.6, (23, 2), {
         "alcohol": _n(12.5, 0.5), "residual_sugar": _ln(4.0, 0.35),
         "titratable_acidity": _n(6.5, 0.5), "volatile_acidity": _n(0.35, 0.06),
@@ -94,14 +106,15 @@ RECIPES: tuple[StyleRecipe, ...] = (
         "ph": _n(3.50, 0.07), "free_so2": _n(24, 5), "total_so2": _n(80, 14),
         "malic_acid": _ln(0.25, 0.6), "lactic_acid": _n(1.5, 0.3), "potassium": _n(1100, 120),
         "total_phenolics": _n(1.8, 0.25), "colour_intensity": _n(6.0, 1.2),
-    }, {"malic_acid": -0.6, "volatile_acidity": -0.6}),
+    }, {"malic_acid": -0.6, "volatile_acidity": -0.6}, malolactic=True),
     StyleRecipe("structured_red", "structured red", "red", 1200 / 6000, 16.0, (31, 3), {
         "alcohol": _n(14.2, 0.5), "residual_sugar": _ln(2.2, 0.35),
         "titratable_acidity": _n(5.4, 0.4), "volatile_acidity": _n(0.58, 0.09),
         "ph": _n(3.65, 0.07), "free_so2": _n(26, 5), "total_so2": _n(95, 15),
         "malic_acid": _ln(0.2, 0.6), "lactic_acid": _n(1.8, 0.3), "potassium": _n(1350, 130),
         "total_phenolics": _n(3.2, 0.4), "colour_intensity": _n(13.0, 2.5),
-    }, {"alcohol": 0.5, "ph": 0.5, "volatile_acidity": -0.6, "malic_acid": -0.45}),
+    }, {"alcohol": 0.5, "ph": 0.5, "volatile_acidity": -0.6, "malic_acid": -0.45},
+        malolactic=True),
     StyleRecipe("late_harvest", "late-harvest sweet", "white", 160 / 6000, 15.3, (30, 3), {
         "alcohol": _n(11.0, 0.7), "residual_sugar": _ln(110, 0.3),
         "titratable_acidity": _n(7.8, 0.7), "volatile_acidity": _n(0.80, 0.15),
@@ -119,7 +132,24 @@ RECIPES: tuple[StyleRecipe, ...] = (
 )
 RECIPES_BY_KEY = {r.key: r for r in RECIPES}
 NO_EFFECT = ("free_so2", "total_so2", "potassium", "total_phenolics", "colour_intensity")
-INDIRECT = ("density",)
+# Within-style links, on the scale of each analyte's standard score: analyte ->
+# ((parent, loading), ...); the rest of its variance is its own. Correlations in the
+# ranges seen in lab panels: fixed acidity vs pH about -0.68, free vs total SO2 about
+# +0.67, density vs alcohol -0.50 (reds) to -0.78 (whites) in the Vinho Verde panels of
+# Cortez et al. (2009), Decision Support Systems 47(4) (values from memory); pH rising
+# with potassium (Boulton (1980), Am. J. Enol. Vitic. 31(2), from memory); colour with
+# phenolics in reds, and lactic acid against malic acid through malolactic fermentation
+# (1 g malic gives 0.672 g lactic), common practice.
+LINKS: dict[str, tuple[tuple[str, float], ...]] = {
+    "ph": (("titratable_acidity", -0.65), ("potassium", 0.45)),
+    "total_so2": (("free_so2", 0.7),),
+}
+RED_LINKS: dict[str, tuple[tuple[str, float], ...]] = {
+    "colour_intensity": (("total_phenolics", 0.7),),
+}
+MLF_LINKS: dict[str, tuple[tuple[str, float], ...]] = {
+    "lactic_acid": (("malic_acid", -0.7),),
+}
 GRADE_NOISE = 0.8
 VINTAGES = tuple(range(2019, 2026))
 
@@ -138,15 +168,35 @@ class DemoRange:
 # --------------------------------------------------------------------------- drawing
 
 
+def _links(recipe: StyleRecipe) -> dict[str, tuple[tuple[str, float], ...]]:
+    """The within-style links of one style's chemistry (density aside)."""
+    links = dict(LINKS)
+    if recipe.colour == "red":
+        links.update(RED_LINKS)
+    if recipe.malolactic:
+        links.update(MLF_LINKS)
+    return links
+
+
 def _draw(rng: np.random.Generator, recipe: StyleRecipe, n: int) -> tuple[pd.DataFrame, np.ndarray]:
-    """Chemistry of ``n`` lots of one style and each lot's planted grade effect."""
+    """Chemistry of ``n`` lots of one style and each lot's planted grade effect.
+
+    Each analyte's standard score is its parents' scores times their loadings
+    plus its own part (scaled so the score keeps unit variance); the grade
+    effect acts on the planted drivers' scores only.
+    """
+    own = rng.standard_normal((len(ANALYTES) - 1, n))
+    z = {a: own[i] for i, a in enumerate(ANALYTES[:-1])}
+    for analyte, parents in _links(recipe).items():
+        rest = np.sqrt(max(1.0 - sum(w * w for _, w in parents), 0.0))
+        z[analyte] = sum(w * z[p] for p, w in parents) + rest * z[analyte]
     data: dict[str, np.ndarray] = {}
     effect = np.zeros(n)
     for analyte in ANALYTES[:-1]:
         family, centre, spread = recipe.chemistry[analyte]
-        z = rng.standard_normal(n)
-        data[analyte] = centre * np.exp(spread * z) if family == "ln" else centre + spread * z
-        effect += recipe.drivers.get(analyte, 0.0) * z
+        data[analyte] = (centre * np.exp(spread * z[analyte]) if family == "ln"
+                         else centre + spread * z[analyte])
+        effect += recipe.drivers.get(analyte, 0.0) * z[analyte]
     data = {a: np.maximum(v, 0.01) for a, v in data.items()}
     data["ph"] = np.clip(data["ph"], 2.8, 4.2)
     data["free_so2"] = np.minimum(data["free_so2"], 0.6 * data["total_so2"])
@@ -270,19 +320,37 @@ def generate_demo(n_lots: int = 6000, seed: int = 7, noise_share: float = 0.0,
                      truth_new_lots=truth_new, truth_drivers=_truth_drivers(recipes))
 
 
+def _parents(recipe: StyleRecipe) -> dict[str, tuple[str, ...]]:
+    """Analyte -> the analytes it is linked with in ``recipe`` (both ways)."""
+    out: dict[str, list[str]] = {a: [] for a in ANALYTES}
+    links = {**_links(recipe), "density": (("alcohol", -1.0), ("residual_sugar", 1.0))}
+    for child, parents in links.items():
+        for parent, _ in parents:
+            out[child].append(parent)
+            out[parent].append(child)
+    return {a: tuple(v) for a, v in out.items()}
+
+
 def _truth_drivers(recipes: list[StyleRecipe]) -> pd.DataFrame:
+    """Per style and analyte: ``direct`` (a planted driver), ``indirect`` (linked to a
+    planted driver, no effect of its own; ``rides_on`` names the driver) or ``no_effect``."""
     rows = []
     for recipe in recipes:
+        linked = _parents(recipe)
         for analyte in ANALYTES:
             beta = recipe.drivers.get(analyte, 0.0)
-            if analyte in INDIRECT:
+            rides = [p for p in linked[analyte] if recipe.drivers.get(p, 0.0)]
+            if beta:
+                role, rides_on = "direct", ""
+            elif rides:
+                # the driver with the largest planted effect carries the passenger most
                 role = "indirect"
-            elif beta:
-                role = "driver"
+                rides_on = max(rides, key=lambda p: abs(recipe.drivers[p]))
             else:
-                role = "no_effect"
+                role, rides_on = "no_effect", ""
             rows.append({"style": recipe.key, "analyte": analyte, "role": role,
-                         "sign": int(np.sign(beta)), "effect_per_sd": beta})
+                         "sign": int(np.sign(beta)), "effect_per_sd": beta,
+                         "rides_on": rides_on})
     return pd.DataFrame(rows)
 
 
@@ -379,6 +447,8 @@ def _planted_anomalies(rng: np.random.Generator, recipes: list[StyleRecipe],
 
 def write_demo(out_dir: str | Path, demo: DemoRange) -> dict[str, Path]:
     """Write the demo tables as CSV (UTF-8, comma, LF) and return their paths."""
+    from vinstrata.folders import atomic_path
+
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     files = {
@@ -390,6 +460,7 @@ def write_demo(out_dir: str | Path, demo: DemoRange) -> dict[str, Path]:
     paths = {}
     for key, (name, frame) in files.items():
         path = out / name
-        frame.to_csv(path, index=False, lineterminator="\n")
+        with atomic_path(path) as temp:  # whole or not at all, like every output
+            frame.to_csv(temp, index=False, lineterminator="\n")
         paths[key] = path
     return paths

@@ -5,7 +5,7 @@ Modules, in the order the stage runs::
     match       Refusing new-lot files that do not fit the model: other columns, other units.
     placing     Placing new lots against the styles of a fitted model.
     neighbours  The nearest historical lots of new lots, and the grade bands among them.
-    flags       New lots' analytes against their style: robust z, percentiles, cut and window flags.
+    flags       New lots' analytes against their style: robust z, percentiles, and the driver flags.
     limits      Screening of lots against legal limits and a molecular SO2 target.
     text        The placements as a terminal table.
 """
@@ -19,15 +19,24 @@ _NAMES = {
     "INDICATION": "vinstrata.place.placing",
     "Placements": "vinstrata.place.placing",
     "place_lots": "vinstrata.place.placing",
-    "predict_styles": "vinstrata.place.placing",
-    "soft_memberships": "vinstrata.place.placing",
+    "Placed": "vinstrata.place.placing",
+    "locate_lots": "vinstrata.place.placing",
     "join_near": "vinstrata.place.neighbours",
     "nearest_lots": "vinstrata.place.neighbours",
     "band_shares": "vinstrata.place.neighbours",
     "analyte_view": "vinstrata.place.flags",
+    "DriverScale": "vinstrata.place.flags",
+    "DriverView": "vinstrata.place.flags",
+    "driver_scales": "vinstrata.place.flags",
+    "driver_view": "vinstrata.place.flags",
+    "balanced_cut": "vinstrata.place.flags",
+    "mid_percentile": "vinstrata.place.flags",
+    "pulls": "vinstrata.place.flags",
     "lot_colours": "vinstrata.place.flags",
     "short_flags": "vinstrata.place.flags",
     "CAUTION": "vinstrata.place.limits",
+    "VA_EXCEPTIONS": "vinstrata.place.limits",
+    "SULFITE_LINES": "vinstrata.place.limits",
     "limit_set": "vinstrata.place.limits",
     "normalise_colour": "vinstrata.place.limits",
     "Flag": "vinstrata.place.limits",

@@ -1,6 +1,6 @@
 """Screening of lots against legal limits and a molecular SO2 target.
 
-Screening only: certified laboratory analyses and the local regulations
+Screening only: certified laboratory analyses and the regulation in force
 decide. The default values per market (``[limits.<market>]`` overrides any):
 
 =====================  ===========  ================  ==========================================
@@ -14,12 +14,20 @@ total SO2, white/rosé  200 / 250    200 / 300         350 mg/L
 sulfite statement      > 10 mg/L    > 10 mg/L         >= 10 ppm (27 CFR 4.32(e))
 =====================  ===========  ================  ==========================================
 
-EU values: Regulation (EU) 2019/934, Annex I (VA 20 / 18 meq/L; SO2 part B, dry
-below 5 g/L of glucose + fructose, some sweet categories allow 300-400 mg/L)
-and Regulation (EU) No 1169/2011, Annex II (sulfite statement). OIV values:
+EU values: Regulation (EU) 2019/934, Annex I (Part A: VA 20 / 18 meq/L; Part B:
+SO2, dry below 5 g/L of glucose + fructose, some sweet categories allow 300-400
+mg/L) and Regulation (EU) No 1169/2011, Annex II (sulfite statement). OIV values:
 OIV Compendium of methods, OIV-MA-C1-01 "Maximum acceptable limits" (dry at
-most 4 g/L of reducing substances); the OIV has no sulfite line in our
-sources, so the EU line is used. VA is expressed as acetic acid.
+most 4 g/L of reducing substances). The OIV sets no sulfite labelling line, so
+under market "oiv" the EU line is used and the flag says so. VA is expressed as
+acetic acid.
+
+The VA maxima have exceptions the screening does not model
+(:data:`VA_EXCEPTIONS`): 27 CFR 4.21 measures VA excluding sulfur dioxide and
+allows higher maxima for wines from unameliorated juice of 28 Brix or more;
+Regulation (EU) 2019/934, Annex I Part A, lets higher values stand for some
+wines. A flag is a reason to look, never a verdict: the regulation in force
+decides.
 
 Where a lot's colour is unknown the strictest value of the market applies and
 the flag says so; where its sugar is unknown the dry (lower) SO2 maximum applies.
@@ -41,8 +49,16 @@ from vinstrata.read.analytes import normalise_name
 from vinstrata.read.derive import molecular_so2
 from vinstrata.read.lots import AnalyteSpec
 
-CAUTION = ("Screening flags only: certified laboratory analyses and the local regulations "
+CAUTION = ("Screening flags only: certified laboratory analyses and the regulation in force "
            "decide.")
+VA_EXCEPTIONS = ("The volatile acidity maxima have exceptions: the US rule (27 CFR 4.21) "
+                 "measures volatile acidity excluding sulfur dioxide and allows higher maxima "
+                 "for some wines from high-sugar juice; the EU grants derogations for some "
+                 "wines (Regulation (EU) 2019/934, Annex I Part A).")
+# whose sulfite labelling line a market's default is; the OIV sets none, so "oiv" uses the EU's
+SULFITE_LINES = {"eu": "the EU line, Regulation (EU) No 1169/2011 Annex II",
+                 "oiv": "the EU line of Regulation (EU) No 1169/2011 Annex II: the OIV sets none",
+                 "us": "the US line, 27 CFR 4.32(e)"}
 
 MARKETS: dict[str, LimitSet] = {
     "eu": LimitSet(va_max_red=1.20, va_max_white_rose=1.08, so2_max_red_dry=150.0,
@@ -124,13 +140,14 @@ def screen(values: pd.DataFrame, specs: tuple[AnalyteSpec, ...], colours: np.nda
     ph = _by_kind(specs, values, "ph")
     if limits is not None:
         market = MARKET_NAMES[settings.market]
+        line = _sulfite_line(settings.market, limits)
         for i in range(n):
             colour = colours[i]
             if va is not None and np.isfinite(va[i]):
                 _check_va(out[i], va[i], colour, limits, market)
             if total is not None and np.isfinite(total[i]):
                 s = sugar[i] if sugar is not None else np.nan
-                _check_so2(out[i], total[i], s, colour, limits, market)
+                _check_so2(out[i], total[i], s, colour, limits, market, line)
     if free is not None and ph is not None:
         mol = molecular_so2(free, ph, pka)
         for i in range(n):
@@ -149,6 +166,15 @@ def screen(values: pd.DataFrame, specs: tuple[AnalyteSpec, ...], colours: np.nda
     return out
 
 
+def _sulfite_line(market: str, limits: LimitSet) -> str:
+    """Whose sulfite labelling line ``limits`` holds, in words."""
+    base = MARKETS[market]
+    if (limits.sulfite_label_from, limits.sulfite_label_inclusive) == (
+            base.sulfite_label_from, base.sulfite_label_inclusive):
+        return SULFITE_LINES[market]
+    return f"the line set in [limits.{market}]"
+
+
 def _check_va(flags: list[Flag], va: float, colour: str, limits: LimitSet, market: str) -> None:
     if colour == "red":
         limit, what = limits.va_max_red, "red-wine"
@@ -164,7 +190,7 @@ def _check_va(flags: list[Flag], va: float, colour: str, limits: LimitSet, marke
 
 
 def _check_so2(flags: list[Flag], total: float, sugar: float, colour: str, limits: LimitSet,
-               market: str) -> None:
+               market: str, sulfite_line: str) -> None:
     if np.isfinite(sugar):
         sweet = sugar >= limits.sweet_from_sugar if limits.sweet_inclusive else (
             sugar > limits.sweet_from_sugar)
@@ -184,9 +210,10 @@ def _check_so2(flags: list[Flag], total: float, sugar: float, colour: str, limit
                                                    f"{what} maximum {limit:.0f} mg/L",
                           f"SO2 {total:.0f} > {limit:.0f} ({market} {what.split(' (')[0]})"))
     line = limits.sulfite_label_from
-    needs = total >= line if limits.sulfite_label_inclusive else total > line
-    if needs:
+    over = total >= line if limits.sulfite_label_inclusive else total > line
+    if over:
         sign = "at or above" if limits.sulfite_label_inclusive else "above"
-        flags.append(Flag("sulfite_statement", f"total SO2 {sign} {line:g} mg/L: a sulfite "
-                                               f"statement on the label ({market})",
+        flags.append(Flag("sulfite_statement", f"total SO2 {total:.4g} mg/L {sign} {line:g} "
+                                               f"mg/L: flagged for a sulfite statement "
+                                               f"({sulfite_line})",
                           "sulfite statement"))

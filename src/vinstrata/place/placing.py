@@ -17,9 +17,10 @@ and, per used lot:
 * its 5 nearest historical lots in the clustering space;
 * per analyte, its robust z against its style's median and IQR and its
   percentile inside the style;
-* flags: an analyte off its style (|robust z| above ``place.z_flag``), on the
-  losing side of one of its style's driver cuts, outside its style's target
-  window, and the screening flags of :mod:`vinstrata.place.limits`;
+* flags: an analyte off its style (|robust z| above ``place.z_flag``); its
+  style's drivers taken together (the driver score of :mod:`vinstrata.place.flags`)
+  where bottom-band lots of the style dominate, naming the one to three drivers
+  that pull it down most; and the screening flags of :mod:`vinstrata.place.limits`;
 * an indicative band: the share of its nearest historical lots of the same
   style in each grade band, an indication from neighbours, not a forecast.
 
@@ -30,14 +31,13 @@ of 20 or more away from the model's on most lots (another unit).
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
 from vinstrata.config import Config
-from vinstrata.place.flags import analyte_view, lot_colours, short_flags
+from vinstrata.place.flags import DriverView, analyte_view, driver_view, lot_colours, short_flags
 from vinstrata.place.limits import Flag, screen
 from vinstrata.place.match import check_units
 from vinstrata.place.neighbours import band_shares, join_near, nearest_lots
@@ -45,9 +45,11 @@ from vinstrata.profile.drivers import Profiles
 from vinstrata.progress import Reporter
 from vinstrata.read.lots import UNASSIGNED, LotTable
 from vinstrata.segment import embed
-from vinstrata.segment.assign import rebuild_clusterer, style_shapes
+from vinstrata.segment.assign import Assignment, place_in_styles
 from vinstrata.segment.model import StyleModel
 from vinstrata.segment.transform import scale_chemistry
+from vinstrata.segment.typicality import atypical_line
+from vinstrata.settings import PlaceSettings
 
 PLACEMENT_COLUMNS = ("lot_id", "status", "style", "style_name", "membership", "atypical",
                      "outlier_score", "nearest_lots", "indicative_band", "share_top", "flags")
@@ -58,7 +60,7 @@ INDICATION = "indication from the nearest historical lots of the style, not a fo
 
 @dataclass(frozen=True)
 class Placements:
-    """Everything placing produces, as plain DataFrames.
+    """Everything placing produces, as plain DataFrames, and what it was made with.
 
     Attributes
     ----------
@@ -72,12 +74,27 @@ class Placements:
         cut, target window and flag.
     neighbours : DataFrame
         Per used lot its nearest historical lots: rank, lot, style, grade, distance.
+    settings : PlaceSettings
+        The place settings, bands, market, seed and model hash of the run.
     """
 
     lots: pd.DataFrame
     details: pd.DataFrame
     analytes: pd.DataFrame
     neighbours: pd.DataFrame
+    settings: PlaceSettings
+
+
+@dataclass(frozen=True)
+class Placed:
+    """Where the used new lots went: position, style, typicality."""
+
+    space: np.ndarray
+    map_xy: np.ndarray
+    assignment: Assignment
+    atypical: np.ndarray
+    style: np.ndarray  # each lot's style id, or "unassigned"
+    home: np.ndarray  # its style, or its nearest style when it has none
 
 
 def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = None,
@@ -90,8 +107,8 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
         New lots, validated with ``require_grade=False``.
     model : StyleModel
     profiles : Profiles, optional
-        The model's profiles, for driver-cut and target-window flags; without
-        them only off-style and screening flags are given.
+        The model's profiles, for the driver flags; without them only
+        off-style and screening flags are given.
     config : Config, optional
         Place and limits settings; the model's config when None.
     reporter : Reporter, optional
@@ -101,112 +118,148 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
     Placements
     """
     config = config or model.config
-    rep = reporter or Reporter()
+    settings = PlaceSettings.from_config(config, model.source.sha256)
     check_units(table, model)
     used = table.used
-    idx = np.flatnonzero(used)
-    n = idx.size
+    base = _empty_lots(table)
+    if not used.any():
+        (reporter or Reporter()).warn(f"{table.source.name}: no usable new lots")
+        return Placements(base, pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), settings)
     values = table.values.loc[used].reset_index(drop=True)
     flags = table.flags.loc[used].reset_index(drop=True)
-    names = model.style_names()
-    style_ids = model.style_ids
-    base = _empty_lots(table, model)
-    if n == 0:
-        rep.warn(f"{table.source.name}: no usable new lots")
-        return Placements(base, pd.DataFrame(), pd.DataFrame(), pd.DataFrame())
+    placed = locate_lots(values, flags, model, config, settings.atypical_percentile)
+    near = nearest_lots(model, placed.space, settings.neighbours)
+    shares, counts = band_shares(model, placed.space, placed.home, settings.bands,
+                                 settings.include_unassigned, settings.band_neighbours)
+    drivers = driver_view(values, model, profiles, placed.home,
+                          judged=~placed.assignment.fits_none)
+    per_analyte, analyte_flags = analyte_view(values, model, profiles, placed.home,
+                                              settings.z_flag, named=drivers.named)
+    analyte_flags = [off + mine for off, mine in zip(analyte_flags, drivers.flags)]
+    colours = lot_colours(table.extra.loc[used], config.limits.colour_column,
+                          config.limits.default_colour)
+    screening = screen(values, table.specs, colours, config.limits, config.derived.so2_pka)
+    lot_flags = _lot_flags(placed, analyte_flags, screening)
+    lot_ids = table.ids.loc[used, "lot_id"].astype(str).to_numpy()
+    return Placements(
+        lots=_fill_lots(base, used, placed, near, shares, lot_flags, model, settings),
+        details=_details(lot_ids, placed, counts, shares, lot_flags, settings.bands.labels,
+                         drivers),
+        analytes=_with_lot_ids(per_analyte, lot_ids, len(model.specs)),
+        neighbours=near.assign(lot_id=lot_ids[near["lot_id"].to_numpy(dtype=int)]),
+        settings=settings,
+    )
 
+
+def locate_lots(values: pd.DataFrame, flags: pd.DataFrame, model: StyleModel, config: Config,
+                atypical_percentile: float) -> Placed:
+    """The lots' clustering-space and map positions, their styles and typicality.
+
+    Parameters
+    ----------
+    values, flags : DataFrame
+        The used lots' canonical values and cell states.
+    model : StyleModel
+    config : Config
+        For the censoring rule and the imputation neighbours.
+    atypical_percentile : float
+        The training lots' percentile of the outlier score that marks a lot atypical.
+
+    Returns
+    -------
+    Placed
+    """
     scaled = scale_chemistry(values[list(model.analytes)], flags, model.scaler, config,
                              reference=model.scaled)
-    k = min(int(model.params["neighbours"]), len(model.lots))
-    neighbours = embed.nearest(model.scaled, k, query=scaled)
-    if model.params["space"] == "umap":
-        space = embed.interpolate(neighbours, model.space)
+    k = min(model.params.neighbours, len(model.lots))
+    found = embed.nearest(model.scaled, k, query=scaled)
+    if model.params.space == "umap":
+        space = embed.interpolate(found, model.space)
     else:
         space = scaled.astype(np.float32)
-    map_xy = embed.interpolate(neighbours, model.map2d)
+    assignment = place_in_styles(model, space, scaled)
+    # the atypical line is the training lots' own percentile, under this run's settings
+    line = atypical_line(model.lots["outlier_score"].to_numpy(dtype=float),
+                         atypical_percentile)
+    atypical = (assignment.outlier_score > line) | (assignment.style_index < 0)
+    ids = model.style_ids
+    style = np.array([ids[s] if s >= 0 else UNASSIGNED for s in assignment.style_index],
+                     dtype=object)
+    home = np.array([ids[s] for s in assignment.nearest_index], dtype=object)
+    return Placed(space=space, map_xy=embed.interpolate(found, model.map2d),
+                  assignment=assignment, atypical=atypical, style=style, home=home)
 
-    # style and strength as HDBSCAN predicts them; a lot without a style gets its
-    # nearest one and its soft membership to it, as in the segmentation
-    style_index, strength, clusterer = predict_styles(model, space)
-    nearest_index = style_index.copy()
-    loose = np.flatnonzero(style_index < 0)
-    if loose.size:
-        soft = soft_memberships(model, clusterer, space[loose])
-        nearest_index[loose] = np.argmax(soft, axis=1)
-        strength[loose] = soft[np.arange(loose.size), nearest_index[loose]]
-    shapes = style_shapes(model)
-    scores = np.empty(n)
-    for s, sid in enumerate(style_ids):
-        mask = nearest_index == s
-        if mask.any():
-            scores[mask] = shapes[sid].score(scaled[mask])
-    fits_none = scores > float(model.outliers["cutoff"])
-    turned = np.flatnonzero(fits_none & (style_index >= 0))
-    if turned.size:  # styled by HDBSCAN but unlike its style's chemistry: unassigned too
-        soft = soft_memberships(model, clusterer, space[turned])
-        strength[turned] = soft[np.arange(turned.size), nearest_index[turned]]
-    style_index = np.where(fits_none, -1, style_index)
-    # the atypical line is the training lots' own percentile, under this run's config
-    line = float(np.percentile(model.lots["outlier_score"], config.place.atypical_percentile))
-    atypical = (scores > line) | (style_index < 0)
-    style = np.array([style_ids[s] if s >= 0 else UNASSIGNED for s in style_index], dtype=object)
-    home = np.array([style_ids[s] for s in nearest_index], dtype=object)
 
-    near = nearest_lots(model, space, config.place.neighbours)
-    shares, counts = band_shares(model, space, home, config)
-    per_analyte, analyte_flags = analyte_view(values, model, profiles, home, config)
-    colours = lot_colours(table, config, used)
-    screening = screen(values, table.specs, colours, config.limits, config.derived.so2_pka)
-
-    lot_ids = table.ids.loc[used, "lot_id"].astype(str).to_numpy()
-    labels = config.bands.labels
-    lot_flags = []
-    for i in range(n):
-        mine = analyte_flags[i]
-        if fits_none[i]:
-            # cuts and windows of a style the lot does not belong to say nothing
+def _lot_flags(placed: Placed, analyte_flags: list[list[Flag]],
+               screening: list[list[Flag]]) -> list[list[Flag]]:
+    """Each lot's flags: typicality first, then its analytes, then the screening."""
+    scores, home = placed.assignment.outlier_score, placed.home
+    out = []
+    for i, mine in enumerate(analyte_flags):
+        if placed.assignment.fits_none[i]:
+            # the drivers of a style the lot does not belong to say nothing
             mine = [f for f in mine if f.token.startswith("off_style")]
             head = [Flag("fits_no_style", f"fits no style (outlier score {scores[i]:.1f}; "
                                           f"nearest {home[i]})", f"no style {scores[i]:.1f}")]
-        elif atypical[i]:
+        elif placed.atypical[i]:
             head = [Flag("atypical", f"atypical of {home[i]} (outlier score {scores[i]:.1f})",
                          f"atypical {scores[i]:.1f}")]
         else:
             head = []
-        lot_flags.append(head + mine + screening[i])
-    flag_tokens = [";".join(f.token for f in fl) for fl in lot_flags]
-    flag_words = ["; ".join(f.words for f in fl) for fl in lot_flags]
-    flag_short = [short_flags(fl) for fl in lot_flags]
-    has_bands = np.isfinite(shares).all(axis=1)
-    indicative = np.where(has_bands, np.array(labels, dtype=object)[np.argmax(
-        np.nan_to_num(shares, nan=-1.0), axis=1)], "")
-    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
+        out.append(head + mine + screening[i])
+    return out
 
-    out = base
+
+def _indicative(shares: np.ndarray, labels: tuple[str, ...]) -> np.ndarray:
+    """The band most of a lot's neighbours got ("" without graded neighbours)."""
+    has_bands = np.isfinite(shares).all(axis=1)
+    return np.where(has_bands, np.array(labels, dtype=object)[np.argmax(
+        np.nan_to_num(shares, nan=-1.0), axis=1)], "")
+
+
+def _fill_lots(out: pd.DataFrame, used: np.ndarray, placed: Placed, near: pd.DataFrame,
+               shares: np.ndarray, lot_flags: list[list[Flag]], model: StyleModel,
+               settings: PlaceSettings) -> pd.DataFrame:
+    """``placements.csv``: the used rows of ``out`` filled in."""
+    a, style = placed.assignment, placed.style
+    names = model.style_names()
+    trusted = dict(zip(model.styles["style"], model.styles["trusted"]))
     out.loc[used, "style"] = style
     out.loc[used, "style_name"] = [names.get(s, "") for s in style]
-    out.loc[used, "membership"] = np.round(strength, 6)
-    out.loc[used, "atypical"] = atypical
-    out.loc[used, "outlier_score"] = np.round(scores, 6)
-    out.loc[used, "nearest_lots"] = join_near(near, n)
-    out.loc[used, "indicative_band"] = indicative
+    out.loc[used, "membership"] = np.round(a.membership, 6)
+    out.loc[used, "atypical"] = placed.atypical
+    out.loc[used, "outlier_score"] = np.round(a.outlier_score, 6)
+    out.loc[used, "nearest_lots"] = join_near(near, len(style))
+    out.loc[used, "indicative_band"] = _indicative(shares, settings.bands.labels)
     out.loc[used, "share_top"] = np.round(shares[:, -1], 6)
-    out.loc[used, "flags"] = flag_tokens
-    out.loc[used, "trusted"] = [bool(trusted[h]) for h in home]
+    out.loc[used, "flags"] = [";".join(f.token for f in fl) for fl in lot_flags]
+    out.loc[used, "trusted"] = [bool(trusted[h]) for h in placed.home]
+    return out
 
-    details = pd.DataFrame({
-        "lot_id": lot_ids, "style": style, "nearest_style": home,
-        "map_x": map_xy[:, 0].astype(float), "map_y": map_xy[:, 1].astype(float),
+
+def _details(lot_ids: np.ndarray, placed: Placed, counts: np.ndarray, shares: np.ndarray,
+             lot_flags: list[list[Flag]], labels: tuple[str, ...], drivers: DriverView
+             ) -> pd.DataFrame:
+    """``placement_details.csv``: map position, nearest style, band shares, flags in words,
+    and the lot's driver score with its style's score cut (empty without drivers)."""
+    return pd.DataFrame({
+        "lot_id": lot_ids, "style": placed.style, "nearest_style": placed.home,
+        "map_x": placed.map_xy[:, 0].astype(float), "map_y": placed.map_xy[:, 1].astype(float),
         "band_neighbours": counts,
         **{f"share_{label}": np.round(shares[:, j], 6) for j, label in enumerate(labels)},
-        "flags_text": flag_words, "flags_short": flag_short,
+        "flags_text": ["; ".join(f.words for f in fl) for fl in lot_flags],
+        "flags_short": [short_flags(fl) for fl in lot_flags],
+        "driver_score": np.round(drivers.score, 6), "driver_cut": np.round(drivers.cut, 6),
     })
-    per_analyte.insert(0, "lot_id", np.repeat(lot_ids, len(model.specs)))  # sorted by lot
-    near["lot_id"] = lot_ids[near["lot_id"].to_numpy(dtype=int)]
-    return Placements(lots=out, details=details, analytes=per_analyte, neighbours=near)
 
 
-def _empty_lots(table: LotTable, model: StyleModel) -> pd.DataFrame:
+def _with_lot_ids(per_analyte: pd.DataFrame, lot_ids: np.ndarray, n_analytes: int
+                  ) -> pd.DataFrame:
+    per_analyte.insert(0, "lot_id", np.repeat(lot_ids, n_analytes))  # sorted by lot
+    return per_analyte
+
+
+def _empty_lots(table: LotTable) -> pd.DataFrame:
     out = pd.DataFrame({"lot_id": table.ids["lot_id"].astype(str),
                         "status": table.ids["status"]})
     for column in PLACEMENT_COLUMNS[2:]:
@@ -215,40 +268,3 @@ def _empty_lots(table: LotTable, model: StyleModel) -> pd.DataFrame:
         out[column] = table.extra[column].to_numpy()
     out["trusted"] = pd.Series([None] * table.n_rows, dtype=object)
     return out
-
-
-def predict_styles(model: StyleModel, space: np.ndarray) -> tuple[np.ndarray, np.ndarray, object]:
-    """Style index (-1 for HDBSCAN noise) and membership strength per lot, and the clusterer."""
-    n = len(space)
-    if model.params.get("one_style"):
-        return np.zeros(n, dtype=int), np.ones(n), None
-    import hdbscan
-
-    clusterer = rebuild_clusterer(model)
-    position = {sid: s for s, sid in enumerate(model.style_ids)}
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        clusters, strength = hdbscan.approximate_predict(clusterer, space)
-    cluster_styles = model.params["cluster_styles"]
-    style_index = np.array([position.get(cluster_styles[c], -1) if c >= 0 else -1
-                            for c in clusters], dtype=int)
-    return style_index, np.asarray(strength, dtype=float).copy(), clusterer
-
-
-def soft_memberships(model: StyleModel, clusterer: object, points: np.ndarray) -> np.ndarray:
-    """Soft membership of lots to every style (rows sum to 1), as segmentation gives it."""
-    n_styles = len(model.style_ids)
-    if clusterer is None or not len(points):
-        return np.full((len(points), n_styles), 1.0 / n_styles)
-    import hdbscan
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        vectors = np.asarray(hdbscan.membership_vector(clusterer, points), dtype=float)
-    vectors = vectors.reshape(len(points), -1)
-    position = {sid: s for s, sid in enumerate(model.style_ids)}
-    soft = np.zeros((len(points), n_styles))
-    for c, sid in enumerate(model.params["cluster_styles"]):
-        if sid in position:
-            soft[:, position[sid]] += vectors[:, c]
-    return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import textwrap
 
-from vinstrata.place.limits import CAUTION
+from vinstrata.place.limits import CAUTION, SULFITE_LINES, VA_EXCEPTIONS
 from vinstrata.place.placing import INDICATION, Placements
 from vinstrata.read.lots import UNASSIGNED, USED
 
@@ -17,7 +17,8 @@ def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
     head_row = f"{'lot':<13} {'style':<10} {'memb':>4} {'atyp':<4} {'band':<10} flags"
     lines = [head_row, "-" * width]
     for row in used.head(limit).itertuples():
-        words = details.loc[row.lot_id, "flags_short"] if details is not None else "-"
+        words = (str(details.loc[row.lot_id, "flags_short"]) if details is not None else "")
+        words = words or "-"  # the table shows "-" where no flag is earned; the CSV is empty
         style = row.style if row.style != UNASSIGNED else "no style"
         band = (f"{row.indicative_band[:6]} {row.share_top:.0%}" if row.indicative_band
                 else "-")
@@ -40,12 +41,15 @@ def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
     rejected = lots[lots["status"] != USED]
     lines.append("-" * width)
     n_label = int(used["flags"].str.contains("sulfite_statement", regex=False).sum())
-    lines.append(f"{len(used)} lots placed, {int(used['atypical'].astype(bool).sum())} atypical, "
-                 f"{len(rejected)} rejected; {n_label} need a sulfite statement on the label.")
+    line = SULFITE_LINES.get(placements.settings.market)
+    lines += textwrap.wrap(
+        f"{len(used)} lots placed, {int(used['atypical'].astype(bool).sum())} atypical, "
+        f"{len(rejected)} rejected; {n_label} flagged for a sulfite statement"
+        + (f" ({line})." if line else "."), width)
     for row in rejected.head(10).itertuples():
         lines.append(f"  rejected: {row.lot_id or '(no id)'}: {row.status}")
     notes = [f"band: the band most of its neighbours got, and the share of them in the top "
-             f"band ({INDICATION}).", CAUTION]
+             f"band ({INDICATION}).", CAUTION, VA_EXCEPTIONS]
     for note in notes:
         lines += textwrap.wrap(note, width)
     return "\n".join(lines)

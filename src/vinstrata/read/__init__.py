@@ -10,6 +10,7 @@ Modules, in the order the stage runs::
     derive      Derived analytes, computed from measured ones (opt-in, ``[derived] add``).
     lots        The data every stage passes on: a validated lot table and its analyte specs.
     quality     The data-quality account of a lot table: what was read, used, rejected, repaired.
+    hints       Why most rows of a lot table were rejected: the unit a column is likely in.
 """
 
 from vinstrata.lazy import attach
@@ -18,6 +19,7 @@ _NAMES = {
     "Source": "vinstrata.read.ingest",
     "RawTable": "vinstrata.read.ingest",
     "read_table": "vinstrata.read.ingest",
+    "raw_from_frame": "vinstrata.read.ingest",
     "detect_delimiter": "vinstrata.read.ingest",
     "detect_decimal": "vinstrata.read.cells",
     "parse_cells": "vinstrata.read.cells",
@@ -33,6 +35,7 @@ _NAMES = {
     "resolve_specs": "vinstrata.read.validate",
     "validate": "vinstrata.read.validate",
     "load_lots": "vinstrata.read.validate",
+    "lots_from_frame": "vinstrata.read.validate",
     "molecular_so2": "vinstrata.read.derive",
     "free_so2_for_molecular": "vinstrata.read.derive",
     "add_derived": "vinstrata.read.derive",
@@ -46,6 +49,10 @@ _NAMES = {
     "summary": "vinstrata.read.quality",
     "analyte_summary": "vinstrata.read.quality",
     "describe": "vinstrata.read.quality",
+    "UnitHint": "vinstrata.read.hints",
+    "unit_hints": "vinstrata.read.hints",
+    "rejection_hints": "vinstrata.read.hints",
+    "display_unit": "vinstrata.read.hints",
 }
 
 __getattr__, __all__ = attach(__name__, _NAMES)

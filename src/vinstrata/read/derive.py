@@ -5,9 +5,11 @@
   share of free SO2 present as SO2·H2O. The default pKa 1.81 is the value trade
   calculators commonly use; the OIV method OIV-MA-AS323-04C gives 1.798 at
   20 degC in water, rising with alcohol (``derived.so2_pka`` changes it).
-* ``total_acidity`` = fixed acidity + volatile acidity, both as tartaric acid
-  (g/L): volatile acidity (as acetic) is taken to tartaric equivalents by the
-  ratio of equivalent masses 75.044 / 60.052.
+
+Total acidity is not derived: labs report titratable acidity directly, and
+"total acidity" is the trade's own name for it (an alias of
+``titratable_acidity`` in the catalogue), so a sum of fixed and volatile
+acidity under that name would contradict the column most tables carry.
 
 A derived value is missing where one of its parts is missing; its flag says
 ``derived``. Derived analytes join the analyte list like measured ones.
@@ -24,7 +26,6 @@ from vinstrata.errors import InputError
 from vinstrata.read.analytes import KINDS_BY_KEY
 from vinstrata.read.cells import MISSING
 from vinstrata.read.lots import AnalyteSpec, LotTable
-from vinstrata.read.units import ACETIC_TO_TARTARIC
 
 DERIVED_STATE = "derived"
 
@@ -43,7 +44,6 @@ def free_so2_for_molecular(target: float, ph: np.ndarray | float, pka: float = 1
 _NEEDS = {
     "bound_so2": ("total_so2", "free_so2"),
     "molecular_so2": ("free_so2", "ph"),
-    "total_acidity": ("fixed_acidity", "volatile_acidity"),
 }
 
 
@@ -76,10 +76,8 @@ def add_derived(table: LotTable, settings: Derived) -> LotTable:
         a, b = (values[by_kind[p]].to_numpy(dtype=float) for p in parts)
         if name == "bound_so2":
             derived = np.clip(a - b, 0.0, None)
-        elif name == "molecular_so2":
-            derived = molecular_so2(a, b, settings.so2_pka)
         else:
-            derived = a + b * ACETIC_TO_TARTARIC
+            derived = molecular_so2(a, b, settings.so2_pka)
         values[name] = derived
         flags[name] = np.where(np.isfinite(derived), DERIVED_STATE, MISSING)
         specs.append(_derived_spec(name))
@@ -87,10 +85,7 @@ def add_derived(table: LotTable, settings: Derived) -> LotTable:
 
 
 def _derived_spec(name: str) -> AnalyteSpec:
-    if name == "total_acidity":
-        key, label, unit, bounds = "", "total acidity", "g/L tartaric", (0.0, 30.0)
-    else:
-        kind = KINDS_BY_KEY[name]
-        key, label, unit, bounds = kind.key, kind.label, kind.unit, kind.bounds
-    return AnalyteSpec(name=name, column="", kind=key, label=label, unit=unit, unit_in=unit,
-                       factor=1.0, bounds=bounds, concentration=True, derived=True)
+    kind = KINDS_BY_KEY[name]
+    return AnalyteSpec(name=name, column="", kind=kind.key, label=kind.label, unit=kind.unit,
+                       unit_in=kind.unit, factor=1.0, bounds=kind.bounds, concentration=True,
+                       derived=True)

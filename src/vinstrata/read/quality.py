@@ -25,6 +25,28 @@ def reason_counts(statuses: pd.Series) -> pd.Series:
     return rejected.str.split(":", n=1).str[0].value_counts().sort_index()
 
 
+def rejection_note(table: LotTable, where: str) -> str | None:
+    """The one warning line for a table's rejected rows, by reason; None when none was.
+
+    Parameters
+    ----------
+    table : LotTable
+        A validated lot table.
+    where : str
+        Where the reader finds the rejected rows one by one (``row_status.csv``).
+
+    Returns
+    -------
+    str or None
+    """
+    counts = reason_counts(table.ids["status"])
+    if not len(counts):
+        return None
+    parts = ", ".join(f"{count} {reason}" for reason, count in counts.items())
+    return (f"{table.source.name}: {int(counts.sum())} of {table.n_rows} rows rejected "
+            f"({parts}); see {where}")
+
+
 def summary(table: LotTable) -> pd.DataFrame:
     """Whole-table figures as ``metric, value`` rows."""
     status = table.ids["status"]

@@ -31,12 +31,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
 
 from vinstrata.config import Config
 from vinstrata.errors import InputError
+from vinstrata.progress import Reporter
 from vinstrata.read import cells as cellmod
 from vinstrata.read.analytes import (
     KINDS_BY_KEY,
@@ -47,8 +49,10 @@ from vinstrata.read.analytes import (
     split_unit,
 )
 from vinstrata.read.derive import add_derived
-from vinstrata.read.ingest import RawTable, read_table
+from vinstrata.read.hints import rejection_hints
+from vinstrata.read.ingest import RawTable, ReadLimits, raw_from_frame, read_table
 from vinstrata.read.lots import USED, AnalyteSpec, LotTable
+from vinstrata.read.quality import rejection_note
 from vinstrata.read.units import factor_to_canonical
 
 ROW_IDS = "@row"  # [columns] lot_id for a table without lot ids: "row<N>" from the file row
@@ -277,6 +281,26 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     InputError
         A configured column is missing, a unit is unknown for its analyte.
     """
+    columns = _match_columns(raw, config, require_grade)
+    cells = _parse_cells(raw, columns, config.ingest.decimal, config.ingest.censored)
+    statuses = _check_rows(raw, columns, cells, config.ingest.duplicate_ids,
+                           config.ingest.max_missing_share, require_grade)
+    return add_derived(_build_table(raw, columns, cells, statuses), config.derived)
+
+
+@dataclass(frozen=True)
+class _Columns:
+    """The file columns the config names: lot id ("" for none), grade ("" for none), the rest."""
+
+    lot: str
+    grade: str
+    grade_name: str  # the grade column as the config names it
+    passthrough: dict[str, str]  # config name -> header
+    specs: list[AnalyteSpec]
+
+
+def _match_columns(raw: RawTable, config: Config, require_grade: bool) -> _Columns:
+    """Find the configured columns among the headers, and the analytes' specs."""
     name = raw.source.name
     headers = list(raw.cells.columns)
     index = header_index(headers)
@@ -299,61 +323,85 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     clash = [a for a, h in matched.items() if h in taken]
     if clash:
         raise InputError(f"{name}: column '{matched[clash[0]]}' is named twice in [columns]")
-    specs = resolve_specs(config, matched)
+    return _Columns(lot=lot_col, grade=grade_col, grade_name=cols.grade, passthrough=passthrough,
+                    specs=resolve_specs(config, matched))
 
-    n = len(raw.cells)
-    rows = raw.rows
-    decimal = config.ingest.decimal
-    numeric_cols = [raw.cells[s.column] for s in specs]
-    if grade_col:
-        numeric_cols.append(raw.cells[grade_col])
+
+@dataclass(frozen=True)
+class _Cells:
+    """The parsed cells: lot ids, canonical values and cell states, grades."""
+
+    lot_ids: pd.Series
+    values: dict[str, np.ndarray]
+    flags: dict[str, np.ndarray]
+    grade: np.ndarray
+    grade_states: np.ndarray | None  # None without a grade column
+    decimal: str
+
+
+def _parse_cells(raw: RawTable, columns: _Columns, decimal: str, censored: str) -> _Cells:
+    """Numbers from the text cells, in canonical units, with the decimal mark detected."""
     if decimal == "auto":
-        decimal = cellmod.detect_decimal(numeric_cols)
-    stat = _Statuses(n, rows)
-    if lot_col:
-        lot_ids = raw.cells[lot_col].astype(str).str.strip()
+        numeric = [raw.cells[s.column] for s in columns.specs]
+        if columns.grade:
+            numeric.append(raw.cells[columns.grade])
+        decimal = cellmod.detect_decimal(numeric)
+    if columns.lot:
+        lot_ids = raw.cells[columns.lot].astype(str).str.strip()
     else:  # a table without lot ids: each lot is known by its file row
-        lot_ids = pd.Series([f"row{r}" for r in rows], dtype=object)
-    _check_ids(stat, lot_ids, lot_col, config.ingest.duplicate_ids)
-
+        lot_ids = pd.Series([f"row{r}" for r in raw.rows], dtype=object)
     values, flags = {}, {}
-    for spec in specs:
-        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal,
-                                             config.ingest.censored)
+    for spec in columns.specs:
+        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal, censored)
         values[spec.name] = parsed * spec.factor
         flags[spec.name] = states
-        _check_numeric(stat, states, raw.cells[spec.column].to_numpy(), spec.name, spec.column)
-
-    grade = np.full(n, np.nan)
-    if grade_col:
-        grade, gstates = cellmod.parse_cells(raw.cells[grade_col], decimal)
-        bad = (gstates != cellmod.OK) & (gstates != cellmod.MISSING)
+    grade, grade_states = np.full(len(raw.cells), np.nan), None
+    if columns.grade:
+        grade, grade_states = cellmod.parse_cells(raw.cells[columns.grade], decimal)
+        bad = (grade_states != cellmod.OK) & (grade_states != cellmod.MISSING)
         grade[bad] = np.nan
-        gstates = np.where(bad, cellmod.NON_NUMERIC, gstates)
-        _check_numeric(stat, gstates, raw.cells[grade_col].to_numpy(), cols.grade, grade_col)
+        grade_states = np.where(bad, cellmod.NON_NUMERIC, grade_states)
+    return _Cells(lot_ids=lot_ids, values=values, flags=flags, grade=grade,
+                  grade_states=grade_states, decimal=decimal)
+
+
+def _check_rows(raw: RawTable, columns: _Columns, cells: _Cells, duplicate_ids: str,
+                max_missing_share: float, require_grade: bool) -> _Statuses:
+    """Every row's status: the first rejection reason that applies, in the documented order."""
+    stat = _Statuses(len(raw.cells), raw.rows)
+    _check_ids(stat, cells.lot_ids, columns.lot, duplicate_ids)
+    for spec in columns.specs:
+        _check_numeric(stat, cells.flags[spec.name], raw.cells[spec.column].to_numpy(),
+                       spec.name, spec.column)
+    if cells.grade_states is not None:
+        grade_col, rows = columns.grade, raw.rows
+        _check_numeric(stat, cells.grade_states, raw.cells[grade_col].to_numpy(),
+                       columns.grade_name, grade_col)
         if require_grade:
-            stat.reject(gstates == cellmod.MISSING, "missing_grade",
+            stat.reject(cells.grade_states == cellmod.MISSING, "missing_grade",
                         lambda i: f"row {rows[i]}: no grade in column '{grade_col}'")
+    for spec in columns.specs:
+        _check_range(stat, cells.values[spec.name], spec)
+    _check_so2(stat, cells.values, columns.specs)
+    _check_missing(stat, cells.flags, len(columns.specs), max_missing_share)
+    return stat
 
-    for spec in specs:
-        _check_range(stat, values[spec.name], spec)
-    _check_so2(stat, values, specs)
-    _check_missing(stat, flags, len(specs), config.ingest.max_missing_share)
 
+def _build_table(raw: RawTable, columns: _Columns, cells: _Cells, stat: _Statuses
+                 ) -> LotTable:
+    """The lot table: ids and statuses, values, cell states and passthrough columns."""
     ids = pd.DataFrame({
-        "row": np.asarray(rows, dtype=int), "lot_id": lot_ids.to_numpy(dtype=object),
-        "status": stat.status, "detail": stat.detail, "grade": grade,
+        "row": np.asarray(raw.rows, dtype=int), "lot_id": cells.lot_ids.to_numpy(dtype=object),
+        "status": stat.status, "detail": stat.detail, "grade": cells.grade,
     })
-    value_frame = pd.DataFrame(values, index=ids.index)
-    flag_frame = pd.DataFrame(flags, index=ids.index)
-    extra = pd.DataFrame({p: raw.cells[h].to_numpy(dtype=object) for p, h in passthrough.items()},
-                         index=ids.index)
-    table = LotTable(
-        ids=ids, values=value_frame, flags=flag_frame, extra=extra, specs=tuple(specs),
-        source=raw.source, blank_rows=raw.blank_rows, decimal=decimal,
-        has_grade=bool(grade_col),
+    extra = pd.DataFrame({p: raw.cells[h].to_numpy(dtype=object)
+                          for p, h in columns.passthrough.items()}, index=ids.index)
+    return LotTable(
+        ids=ids, values=pd.DataFrame(cells.values, index=ids.index),
+        flags=pd.DataFrame(cells.flags, index=ids.index), extra=extra,
+        specs=tuple(columns.specs), source=raw.source, blank_rows=raw.blank_rows,
+        decimal=cells.decimal, has_grade=bool(columns.grade),
     )
-    return add_derived(table, config.derived)
 
 
 def _short(text: object) -> str:
@@ -361,7 +409,72 @@ def _short(text: object) -> str:
     return text if len(text) <= 30 else text[:27] + "..."
 
 
-def load_lots(path: str, config: Config, require_grade: bool = True) -> LotTable:
-    """Read and validate a lot file: :func:`read_table` then :func:`validate`."""
-    raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter)
-    return validate(raw, config, require_grade=require_grade)
+def load_lots(path: str, config: Config, require_grade: bool = True,
+              reporter: Reporter | None = None) -> LotTable:
+    """Read and validate a lot file: :func:`read_table` then :func:`validate`.
+
+    Parameters
+    ----------
+    path : str
+        The lot file (csv, tsv, xlsx or parquet).
+    config : Config
+        The run configuration (``[columns]``, ``[ingest]``, units, bounds).
+    require_grade : bool
+        Reject rows without a grade (``missing_grade``).
+    reporter : Reporter, optional
+        Receives one warning when rows were rejected; without one it reaches
+        Python's :mod:`warnings` as a :class:`~vinstrata.errors.VinstrataWarning`.
+
+    Returns
+    -------
+    LotTable
+        Every row of the file, each with its status.
+    """
+    raw = read_table(path, sheet=config.ingest.sheet, delimiter=config.ingest.delimiter,
+                     limits=ReadLimits.from_config(config.ingest))
+    table = validate(raw, config, require_grade=require_grade)
+    _warn_rejections(table, reporter)
+    return table
+
+
+def lots_from_frame(frame: pd.DataFrame, config: Config, require_grade: bool = True,
+                    reporter: Reporter | None = None, name: str = "DataFrame") -> LotTable:
+    """Validate a pandas DataFrame of lots, as :func:`load_lots` validates a file.
+
+    The frame's cells are turned into text (:func:`vinstrata.read.ingest.raw_from_frame`)
+    and go through the same front door as a file: columns named as the config
+    names them, units, censored values written as text (``"<0.1"``), a status
+    for every row. The index is not read; row numbers count from 2 as in the
+    frame written as CSV (header = row 1).
+
+    Parameters
+    ----------
+    frame : DataFrame
+        One row per lot.
+    config : Config
+    require_grade : bool
+        Reject rows without a grade (``missing_grade``).
+    reporter : Reporter, optional
+        Receives the rejection warnings (see :func:`load_lots`).
+    name : str
+        What messages call the table.
+
+    Returns
+    -------
+    LotTable
+        Its ``source.sha256`` hashes the frame's cells as CSV text: the same
+        frame gives the same hash.
+    """
+    table = validate(raw_from_frame(frame, name), config, require_grade=require_grade)
+    _warn_rejections(table, reporter)
+    return table
+
+
+def _warn_rejections(table: LotTable, reporter: Reporter | None) -> None:
+    """Why most rows were rejected (unit hints first), then the rejected rows by reason."""
+    rep = reporter or Reporter()
+    for line in rejection_hints(table):
+        rep.warn(line)
+    note = rejection_note(table, "the status and detail columns of the table's ids")
+    if note:
+        rep.warn(note)

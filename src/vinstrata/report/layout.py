@@ -9,8 +9,9 @@ ranges with more than eight styles; a style keeps its colour on every page
 
 from __future__ import annotations
 
+import contextlib
 import textwrap
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 
 import matplotlib
 
@@ -18,6 +19,12 @@ matplotlib.use("Agg")
 
 from matplotlib.axes import Axes
 from matplotlib.figure import Figure
+
+# Titles, producers, lot ids, style, column and analyte names, passthrough values and flag
+# words come from users and their files: matplotlib would read the text between two "$"
+# as mathematical notation (and fail on it, or change it), and TeX would read all of it
+# as markup. Every briefing text is drawn as the literal string instead.
+LITERAL_TEXT = {"text.parse_math": False, "text.usetex": False}
 
 PAGE = (8.27, 11.69)  # A4 portrait, inches
 MARGIN = 0.06
@@ -32,6 +39,18 @@ WARN_COLOUR = "#B2182B"
 INK = "#222222"
 MUTED = "#666666"
 BAND_COLOURS = ("#D55E00", "#BBBBBB", "#0072B2")  # bottom, middle, top (Okabe-Ito)
+
+
+@contextlib.contextmanager
+def literal_text() -> Iterator[None]:
+    """Draw every text made inside the block literally: no mathtext, no TeX.
+
+    Text artists take these settings when they are made, and tick labels are
+    made while a figure is saved, so the block must hold both the page drawing
+    and the saving.
+    """
+    with matplotlib.rc_context(LITERAL_TEXT):
+        yield
 
 
 def style_colour(index: int) -> str:

@@ -12,14 +12,15 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
+from matplotlib.axes import Axes
 from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 
-from vinstrata.config import Config
-from vinstrata.place.limits import CAUTION
+from vinstrata.config import Bands, Config
+from vinstrata.place.limits import CAUTION, VA_EXCEPTIONS
 from vinstrata.place.placing import INDICATION, Placements
 from vinstrata.profile.bands import lot_bands
-from vinstrata.profile.drivers import POOLED, Profiles, driver_summary
+from vinstrata.profile.drivers import POOLED, ROLE_ORDER, Profiles, driver_summary
 from vinstrata.read.cells import CENSORED_ABOVE, CENSORED_BELOW, MISSING
 from vinstrata.read.lots import UNASSIGNED, USED, observed
 from vinstrata.read.quality import reason_counts
@@ -43,6 +44,8 @@ from vinstrata.report.layout import (
     wrap,
 )
 from vinstrata.segment.model import StyleModel
+from vinstrata.segment.previous import KEPT, NEW, Comparison
+from vinstrata.settings import PlaceSettings, ProfileSettings
 
 MAX_TABLE_ROWS = 48
 MAX_LABELLED = 60
@@ -51,7 +54,12 @@ LABEL_ALL = 20
 
 @dataclass(frozen=True)
 class Briefing:
-    """Everything the pages draw, gathered once."""
+    """Everything the pages draw, gathered once.
+
+    ``config`` gives the briefing's own settings (``[report]``); every number
+    a page states about a result comes from that result: the model's config
+    and parameters, the profiles' and the placements' settings.
+    """
 
     model: StyleModel
     config: Config
@@ -61,6 +69,8 @@ class Briefing:
     title: str
     foot: str = ""
     style_index: dict[str, int] = field(default_factory=dict)
+    # what changed since the previous model (segment --previous); None without one
+    comparison: Comparison | None = None
 
     @property
     def styles(self) -> pd.DataFrame:
@@ -79,13 +89,33 @@ class Briefing:
         spec = self.model.spec(analyte)
         return f"{spec.label} ({spec.unit})" if spec.unit else spec.label
 
+    @property
+    def profile_settings(self) -> ProfileSettings:
+        """The profiles' settings; without profiles, those the model's config gives."""
+        if self.profiles is not None:
+            return self.profiles.settings
+        return ProfileSettings.from_config(self.model.config, self.model.source.sha256)
+
+    @property
+    def place_settings(self) -> PlaceSettings:
+        """The placements' settings; without placements, those the model's config gives."""
+        if self.placements is not None:
+            return self.placements.settings
+        return PlaceSettings.from_config(self.model.config, self.model.source.sha256)
+
+    @property
+    def bands(self) -> Bands:
+        """The grade bands of the profiles (of the model's config without profiles)."""
+        return self.profile_settings.bands
+
 
 def _bands(data: Briefing) -> tuple[np.ndarray, np.ndarray]:
     """Home style and band of every training lot, as the profiles see them."""
     lots = data.model.lots
+    settings = data.profile_settings
     return lot_bands(lots["grade"].to_numpy(dtype=float), lots["style"].to_numpy(dtype=object),
-                     lots["nearest_style"].to_numpy(dtype=object), data.config.bands,
-                     data.config.profile.include_unassigned)
+                     lots["nearest_style"].to_numpy(dtype=object), settings.bands,
+                     settings.include_unassigned)
 
 
 def _finish(fig: Figure, data: Briefing, page: int) -> Figure:
@@ -127,7 +157,10 @@ def cover(data: Briefing, page: int) -> Figure:
         findings = driver_summary(data.profiles, model, config.report.top_drivers)
         notable = data.profiles.contrasts[data.profiles.contrasts["kind"].isin(
             ["reversal", "pooled_misleading"])]
-        findings += list(notable["sentence"])
+        # one sentence per analyte: a reversal already says what the pooled range shows
+        notable = notable.assign(_first=notable["kind"].map({"reversal": 0}).fillna(1))
+        notable = notable.sort_values("_first", kind="stable").drop_duplicates("analyte")
+        findings += list(notable.sort_index()["sentence"])
     y, written = text_block(fig, y, findings, size=8.5, bullet="• ", bottom=0.19)
     if written < len(findings):
         y, _ = text_block(fig, y, [f"... {len(findings) - written} more findings on the "
@@ -155,18 +188,25 @@ def _map_axes(fig: Figure, rect: list[float]):
 
 
 def maps(data: Briefing, page: int) -> Figure:
-    model = data.model
     fig = new_page("The range on one map",
                    "Each dot is a lot; nearby lots have similar chemistry. Grey: lots that fit "
                    "no style.")
-    lots = model.lots
+    lots = data.model.lots
+    size = float(np.clip(10000 / max(len(lots), 1), 0.4, 14))
+    _style_map(fig, data, size)
+    _band_map(fig, data, size)
+    return _finish(fig, data, page)
+
+
+def _style_map(fig: Figure, data: Briefing, size: float) -> None:
+    """The upper map: lots coloured by style, with a legend of the styles."""
+    lots = data.model.lots
     x, y = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
     style = lots["style"].to_numpy(dtype=object)
-    size = float(np.clip(10000 / max(len(lots), 1), 0.4, 14))
     ax = _map_axes(fig, [0.1, 0.51, 0.62, 0.37])
     ax.set_title("coloured by style", fontsize=9, loc="left")
     un = style == UNASSIGNED
-    for sid in model.style_ids:
+    for sid in data.model.style_ids:
         mask = style == sid
         ax.scatter(x[mask], y[mask], s=size, c=data.colour(sid), linewidths=0, rasterized=True)
         if mask.any():
@@ -183,42 +223,53 @@ def maps(data: Briefing, page: int) -> Figure:
         text_block(fig, legend_y, [f"{r.style} {r.style_name} ({r.n_lots})"], size=7,
                    width=30, left=0.775, gap=0.1)
         legend_y -= 0.045
-    ax2 = _map_axes(fig, [0.1, 0.07, 0.62, 0.37])
-    ax2.set_title("coloured by grade band", fontsize=9, loc="left")
-    grades = lots["grade"].to_numpy(dtype=float)
-    labels = data.config.bands.labels
-    if np.isfinite(grades).any():
-        bands = _bands(data)[1]
-        colours = band_colours(len(labels))
-        ax2.scatter(x[bands < 0], y[bands < 0], s=size * 0.7, c=UNASSIGNED_COLOUR,
-                    linewidths=0, rasterized=True)
-        for b in range(len(labels)):
-            mask = bands == b
-            ax2.scatter(x[mask], y[mask], s=size, c=colours[b], linewidths=0, rasterized=True,
-                        label=f"{labels[b]} ({int(mask.sum())})")
-        ax2.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1),
-                   markerscale=max(1.0, 6 / max(size, 0.1)))
-        mode = ("global cuts " + ", ".join(f"{c:g}" for c in data.config.bands.cuts)
-                if data.config.bands.mode == "global" else
-                "per-style quantiles " + ", ".join(f"{q:g}" for q in data.config.bands.quantiles))
-        fig.text(0.75, 0.3, f"Bands: {mode}.", fontsize=7, color=MUTED, wrap=True)
-    else:
-        ax2.scatter(x, y, s=size, c=UNASSIGNED_COLOUR, linewidths=0, rasterized=True)
-        ax2.text(0.5, 0.5, "no grades in this range", transform=ax2.transAxes, ha="center",
-                 fontsize=10, color=MUTED)
-    return _finish(fig, data, page)
+
+
+def _band_map(fig: Figure, data: Briefing, size: float) -> None:
+    """The lower map: lots coloured by grade band, as the profiles band them."""
+    lots = data.model.lots
+    x, y = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
+    ax = _map_axes(fig, [0.1, 0.07, 0.62, 0.37])
+    ax.set_title("coloured by grade band", fontsize=9, loc="left")
+    if not np.isfinite(lots["grade"].to_numpy(dtype=float)).any():
+        ax.scatter(x, y, s=size, c=UNASSIGNED_COLOUR, linewidths=0, rasterized=True)
+        ax.text(0.5, 0.5, "no grades in this range", transform=ax.transAxes, ha="center",
+                fontsize=10, color=MUTED)
+        return
+    settings = data.bands
+    labels = settings.labels
+    bands = _bands(data)[1]
+    colours = band_colours(len(labels))
+    ax.scatter(x[bands < 0], y[bands < 0], s=size * 0.7, c=UNASSIGNED_COLOUR,
+               linewidths=0, rasterized=True)
+    for b in range(len(labels)):
+        mask = bands == b
+        ax.scatter(x[mask], y[mask], s=size, c=colours[b], linewidths=0, rasterized=True,
+                   label=f"{labels[b]} ({int(mask.sum())})")
+    ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1),
+              markerscale=max(1.0, 6 / max(size, 0.1)))
+    mode = ("global cuts " + ", ".join(f"{c:g}" for c in settings.cuts)
+            if settings.mode == "global" else
+            "per-style quantiles " + ", ".join(f"{q:g}" for q in settings.quantiles))
+    fig.text(0.75, 0.3, f"Bands: {mode}.", fontsize=7, color=MUTED, wrap=True)
 
 
 # --------------------------------------------------------------------------- segmentation choice
 
 
 def segmentation(data: Briefing, page: int) -> Figure:
-    model = data.model
-    params = model.params
     fig = new_page("How the styles were chosen",
                    "HDBSCAN cluster size picked by relative validity; clusters without a "
                    "chemical valley between them joined.")
-    sweep = model.sweep
+    _sweep_plot(fig, data.model.sweep)
+    y, _ = text_block(fig, 0.47, _segmentation_text(data.model), size=9)
+    mono_block(fig, y - 0.02, _sweep_rows(data.model.sweep), size=8, left=MARGIN + 0.05,
+               bold_first=True)
+    return _finish(fig, data, page)
+
+
+def _sweep_plot(fig: Figure, sweep: pd.DataFrame) -> None:
+    """Relative validity and the unassigned share of each candidate cluster size."""
     ax = fig.add_axes([0.12, 0.56, 0.74, 0.3])
     tidy(ax)
     sizes = sweep["min_cluster_size"].to_numpy()
@@ -245,23 +296,34 @@ def segmentation(data: Briefing, page: int) -> Figure:
     handles = ax.get_legend_handles_labels()[0] + twin.get_legend_handles_labels()[0]
     ax.legend(handles, ["relative validity", "chosen", "unassigned (%)"], fontsize=7,
               frameon=False, loc="lower left")
-    choice = ("swept" if params["size_choice"] == "sweep" else "fixed in the config")
+
+
+def _segmentation_text(model: StyleModel) -> list[str]:
+    """How the styles were chosen, with the model's own parameters."""
+    params = model.params
+    choice = "swept" if params.size_choice == "sweep" else "fixed in the config"
+    space = (f"UMAP, {params.components} components" if params.space == "umap"
+             else "the scaled chemistry itself")
     text = [
-        f"Clustering space: {'UMAP, ' + str(params['components']) + ' components' if params['space'] == 'umap' else 'the scaled chemistry itself'}; "  # noqa: E501
-        f"{params['neighbours']} neighbours, {params['epochs']} epochs, seed {params['seed']}.",
-        f"min_cluster_size {params['min_cluster_size']} ({choice}), min_samples "
-        f"{params['min_samples']}: HDBSCAN found {params['n_clusters']} clusters, which became "
+        f"Clustering space: {space}; {params.neighbours} neighbours, {params.epochs} epochs, "
+        f"seed {params.seed}.",
+        f"min_cluster_size {params.min_cluster_size} ({choice}), min_samples "
+        f"{params.min_samples}: HDBSCAN found {params.n_clusters} clusters, which became "
         f"{len(model.style_ids)} styles after joining clusters with no valley between them in "
-        f"the chemistry (threshold {params['merge_valley']:g}).",
+        f"the chemistry (threshold {params.merge_valley:g}).",
         "The pick: the highest relative validity of the joined clusters; candidates within 0.02 "
         "of the best count as ties and go to fewer unassigned lots, then to the larger size.",
         "Lots that fit no style are judged in the scaled chemistry (robust Mahalanobis distance "
         f"to the style, as a z score; above {model.outliers['cutoff']:g}: unassigned), because "
         "UMAP pulls unusual lots into the nearest cluster.",
     ]
-    if params.get("one_style"):
+    if params.one_style:
         text.append("No candidate kept two styles apart: the range is reported as one style.")
-    y, _ = text_block(fig, 0.47, text, size=9)
+    return text
+
+
+def _sweep_rows(sweep: pd.DataFrame) -> list[str]:
+    """The sweep as fixed-width rows, the chosen candidate marked."""
     rows = [f"{'size':>6} {'samples':>8} {'clusters':>9} {'styles':>7} {'unassigned':>11} "
             f"{'validity':>9}"]
     for r in sweep.itertuples():
@@ -269,15 +331,13 @@ def segmentation(data: Briefing, page: int) -> Figure:
         v = f"{r.relative_validity:.3f}" if np.isfinite(r.relative_validity) else "-"
         rows.append(f"{r.min_cluster_size:>6} {r.min_samples:>8} {r.n_clusters:>9} "
                     f"{r.n_styles:>7} {100 * r.unassigned_share:>10.1f}% {v:>9}{mark}")
-    mono_block(fig, y - 0.02, rows, size=8, left=MARGIN + 0.05, bold_first=True)
-    return _finish(fig, data, page)
+    return rows
 
 
 # --------------------------------------------------------------------------- style cards
 
 
 def style_card(data: Briefing, sid: str, page: int) -> Figure:
-    model, config = data.model, data.config
     row = data.styles.set_index("style").loc[sid]
     fig = new_page(f"{sid} · {row['style_name']}",
                    f"{int(row['n_lots'])} lots, {100 * row['share']:.1f} % of the range"
@@ -292,6 +352,32 @@ def style_card(data: Briefing, sid: str, page: int) -> Figure:
                                      "completeness and should not guide decisions."],
                    size=10.5, width=85)
         top -= 0.08
+    _fingerprint(fig, data, sid, top)
+    drivers = _delta_panel(fig, data, sid, top)
+    if drivers is not None:
+        unsure = _unassigned_notes(data, drivers)
+        _driver_panels(fig, data, sid, drivers, top - 0.43, bottom=0.15 if unsure else 0.1)
+        if unsure:
+            text_block(fig, 0.075, ["Sensitive to the unassigned lots: " + "; ".join(unsure)
+                                    + "."], size=7.5, width=120, bottom=0.035)
+    return _finish(fig, data, page)
+
+
+def _unassigned_notes(data: Briefing, drivers: pd.DataFrame) -> list[str]:
+    """The drivers the unassigned lots make or unmake (the check's notes in drivers.csv)."""
+    out = []
+    for analyte, note in drivers["note"].fillna("").astype(str).items():
+        for part in note.split("; "):
+            if part.startswith(("driver only when", "not a driver when")):
+                # "acidity is a driver only when ..." / "acidity is not a driver when ..."
+                words = f"a {part}" if part.startswith("driver") else part
+                out.append(f"{data.label(str(analyte))} is {words}")
+    return out
+
+
+def _fingerprint(fig: Figure, data: Briefing, sid: str, top: float) -> None:
+    """The style's medians against the range's, as robust z per analyte."""
+    model = data.model
     stats = model.style_stats[model.style_stats["style"] == sid].set_index("analyte")
     analytes = list(model.analytes)
     ax = fig.add_axes([0.2, top - 0.36, 0.27, 0.33])
@@ -303,87 +389,123 @@ def style_card(data: Briefing, sid: str, page: int) -> Figure:
     ax.set_yticks(pos, [data.label(a) for a in analytes], fontsize=7)
     ax.set_xlabel("style median vs range\n(robust z, IQR units)", fontsize=7)
     ax.set_title("chemistry fingerprint", fontsize=8, loc="left")
-    ax2 = fig.add_axes([0.66, top - 0.36, 0.3, 0.33])
-    tidy(ax2)
-    ax2.set_title("drivers: Cliff's delta, top vs bottom", fontsize=8, loc="left")
-    drivers = None
-    if data.profiles is not None:
-        d = data.profiles.drivers
-        drivers = d[d["style"] == sid].set_index("analyte").reindex(analytes)
-        delta = drivers["cliffs_delta"].to_numpy(dtype=float)
-        lows, highs = drivers["ci_low"].to_numpy(dtype=float), drivers["ci_high"].to_numpy(float)
-        driver = drivers["is_driver"].fillna(False).astype(bool).to_numpy() & np.isfinite(delta)
-        plain = ~driver & np.isfinite(delta)
-        colour = data.colour(sid)
-        ax2.hlines(pos[driver], lows[driver], highs[driver], color=colour, linewidth=1.4)
-        ax2.hlines(pos[plain], lows[plain], highs[plain], color="#999999", linewidth=1.4)
-        ax2.scatter(delta[driver], pos[driver], s=22, c=colour, zorder=3)
-        ax2.scatter(delta[plain], pos[plain], s=22, facecolors="white", edgecolors="#999999",
-                    zorder=3)
-        for k in np.flatnonzero(~np.isfinite(delta)):
-            ax2.text(0, pos[k], "insufficient", fontsize=6, color=MUTED, ha="center",
-                     va="center")
-        ax2.set_xlim(-1, 1)
-        ax2.set_ylim(-0.7, len(analytes) - 0.3)
-        ax2.axvline(0, color="#999999", linewidth=0.6)
-        ax2.set_yticks(pos, [data.label(a) for a in analytes], fontsize=7)
-        ax2.set_xlabel(f"Cliff's delta (no unit), {100 * config.profile.ci_level:g} % CI\n"
-                       "filled: driver (q < "
-                       f"{config.profile.fdr:g}, CI excludes 0)", fontsize=7)
-    else:
-        ax2.text(0.5, 0.5, "no grades: not profiled", transform=ax2.transAxes, ha="center",
-                 fontsize=9, color=MUTED)
-        ax2.set_yticks([])
-    if drivers is not None:
-        _driver_panels(fig, data, sid, drivers, top - 0.43)
-    return _finish(fig, data, page)
+
+
+def _delta_panel(fig: Figure, data: Briefing, sid: str, top: float) -> pd.DataFrame | None:
+    """Cliff's delta of each analyte with its interval; the style's drivers rows, if profiled."""
+    analytes = list(data.model.analytes)
+    pos = np.arange(len(analytes))[::-1]
+    ax = fig.add_axes([0.66, top - 0.36, 0.3, 0.33])
+    tidy(ax)
+    ax.set_title("drivers: marginal and conditional effects", fontsize=8, loc="left")
+    if data.profiles is None:
+        ax.text(0.5, 0.5, "no grades: not profiled", transform=ax.transAxes, ha="center",
+                fontsize=9, color=MUTED)
+        ax.set_yticks([])
+        return None
+    d = data.profiles.drivers
+    drivers = d[d["style"] == sid].set_index("analyte").reindex(analytes)
+    delta = drivers["cliffs_delta"].to_numpy(dtype=float)
+    lows, highs = drivers["ci_low"].to_numpy(dtype=float), drivers["ci_high"].to_numpy(float)
+    driver = drivers["is_driver"].fillna(False).astype(bool).to_numpy() & np.isfinite(delta)
+    plain = ~driver & np.isfinite(delta)
+    colour = data.colour(sid)
+    ax.hlines(pos[driver], lows[driver], highs[driver], color=colour, linewidth=1.4)
+    ax.hlines(pos[plain], lows[plain], highs[plain], color="#999999", linewidth=1.4)
+    ax.scatter(delta[driver], pos[driver], s=22, c=colour, zorder=3)
+    ax.scatter(delta[plain], pos[plain], s=22, facecolors="white", edgecolors="#999999",
+               zorder=3)
+    for k in np.flatnonzero(~np.isfinite(delta)):
+        ax.text(0, pos[k], "insufficient", fontsize=6, color=MUTED, ha="center", va="center")
+    # the conditional effect beside the marginal one: what is left once the style's other
+    # analytes are known (a passenger's falls to 0)
+    if "partial_rho" in drivers:
+        rho = drivers["partial_rho"].to_numpy(dtype=float)
+        r_lo = drivers["partial_ci_low"].to_numpy(dtype=float)
+        r_hi = drivers["partial_ci_high"].to_numpy(dtype=float)
+        ok = np.isfinite(rho)
+        ax.hlines(pos[ok] - 0.32, r_lo[ok], r_hi[ok], color=INK, linewidth=0.9)
+        ax.scatter(rho[ok], pos[ok] - 0.32, s=12, marker="D", c=INK, zorder=3)
+    roles = (drivers["role"].fillna("").astype(str) if "role" in drivers
+             else pd.Series("", index=drivers.index))
+    moves = (drivers["moves_with"].fillna("").astype(str) if "moves_with" in drivers
+             else pd.Series("", index=drivers.index))
+    role_text = {"direct": " (direct)", "unclear": " (unclear)"}
+    ticks = [data.label(a) + (f"\nrides on {data.label(m)}" if r == "indirect" and m
+                              else role_text.get(r, ""))
+             for a, r, m in zip(analytes, roles, moves)]
+    ax.set_xlim(-1, 1)
+    ax.set_ylim(-0.7, len(analytes) - 0.3)
+    ax.axvline(0, color="#999999", linewidth=0.6)
+    ax.set_yticks(pos, ticks, fontsize=6)
+    settings = data.profiles.settings
+    ax.set_xlabel(f"dots: Cliff's delta; diamonds: conditional effect\n"
+                  f"(rank partial correlation with the grade); no units\n"
+                  f"{100 * settings.ci_level:g} % CIs; filled: driver (q < {settings.fdr:g}, "
+                  f"CI excludes 0)", fontsize=6)
+    return drivers
 
 
 def _driver_panels(fig: Figure, data: Briefing, sid: str, drivers: pd.DataFrame,
-                   top: float) -> None:
-    config = data.config
-    model = data.model
-    chosen = drivers[drivers["is_driver"].astype(bool)].sort_values("rank").head(
-        config.report.top_drivers)
+                   top: float, bottom: float = 0.1) -> None:
+    """Boxplots by band of the style's top drivers, with their cuts and target windows."""
+    chosen = drivers[drivers["is_driver"].astype(bool)]
+    if "role" in chosen:  # direct drivers lead, passengers come last
+        order = chosen["role"].fillna("").astype(str).map(ROLE_ORDER).fillna(2)
+        chosen = chosen.assign(_order=order).sort_values(["_order", "rank"], kind="stable")
+    else:
+        chosen = chosen.sort_values("rank")
+    chosen = chosen.head(data.config.report.top_drivers)
     if drivers["cliffs_delta"].isna().all():
         text_block(fig, top, ["Too few lots in the top or bottom band to profile this style: "
                               "no effect size is given (see the note in drivers.csv)."], size=9)
         return
     if chosen.empty:
         text_block(fig, top, ["No analyte separates top from bottom lots in this style at the "
-                              f"false discovery rate {config.profile.fdr:g}."], size=9)
+                              f"false discovery rate {data.profile_settings.fdr:g}."], size=9)
         return
     thresholds = data.profiles.thresholds.set_index(["style", "analyte"])
     home, bands = _bands(data)
     mask = home == sid
-    bands = bands[mask]
-    labels = config.bands.labels
-    colours = band_colours(len(labels))
     width = 0.84 / len(chosen)
     fig.text(MARGIN, top + 0.005, "Top drivers by band (dashed: the Youden cut; shaded: the top "
              "band's target window)", fontsize=8, color=INK)
     for k, analyte in enumerate(chosen.index):
-        ax = fig.add_axes([0.1 + k * width, 0.1, width - 0.08, top - 0.14])
+        ax = fig.add_axes([0.1 + k * width, bottom, width - 0.08, top - 0.04 - bottom])
         tidy(ax)
-        values = observed(model.values, model.flags, analyte)[mask]
-        groups = [values[(bands == b) & np.isfinite(values)] for b in range(len(labels))]
-        parts = ax.boxplot([g if g.size else [np.nan] for g in groups], widths=0.55,
-                           patch_artist=True, showfliers=False)
-        for patch, colour in zip(parts["boxes"], colours):
-            patch.set_facecolor(colour)
-            patch.set_alpha(0.55)
-        t = thresholds.loc[(sid, analyte)]
-        if np.isfinite(t["target_low"]):
-            ax.axhspan(t["target_low"], t["target_high"], color="#0072B2", alpha=0.08)
-        if np.isfinite(t["cut"]):
-            ax.axhline(t["cut"], color=INK, linestyle="--", linewidth=0.9)
-            side = "≥" if t["direction"] == "higher_better" else "≤"
-            ax.set_title(f"{data.label(analyte)}: top {side} {t['cut']:.4g}\n"
-                         f"J {t['youden_j']:.2f}, AUC {t['auc']:.2f}", fontsize=7, loc="left")
-        ax.set_xticks(range(1, len(labels) + 1),
-                      [f"{lab}\n(n={g.size})" for lab, g in zip(labels, groups)], fontsize=6)
+        values = observed(data.model.values, data.model.flags, analyte)[mask]
+        _band_boxes(ax, data, values, bands[mask])
+        _cut_marks(ax, data.label(analyte), thresholds.loc[(sid, analyte)])
         ax.set_ylabel(data.axis_label(analyte), fontsize=7)
         ax.set_xlabel("grade band", fontsize=7)
+
+
+def _band_boxes(ax: Axes, data: Briefing, values: np.ndarray, bands: np.ndarray) -> None:
+    """One box per grade band of an analyte's values, the band sizes under the ticks."""
+    labels = data.bands.labels
+    groups = [values[(bands == b) & np.isfinite(values)] for b in range(len(labels))]
+    parts = ax.boxplot([g if g.size else [np.nan] for g in groups], widths=0.55,
+                       patch_artist=True, showfliers=False)
+    for patch, colour in zip(parts["boxes"], band_colours(len(labels))):
+        patch.set_facecolor(colour)
+        patch.set_alpha(0.55)
+    ax.set_xticks(range(1, len(labels) + 1),
+                  [f"{lab}\n(n={g.size})" for lab, g in zip(labels, groups)], fontsize=6)
+
+
+def _cut_marks(ax: Axes, label: str, t: pd.Series) -> None:
+    """A driver's target window (shaded) and Youden cut (dashed, named in the title)."""
+    if np.isfinite(t["target_low"]):
+        ax.axhspan(t["target_low"], t["target_high"], color="#0072B2", alpha=0.08)
+    if np.isfinite(t["cut"]):
+        ax.axhline(t["cut"], color=INK, linestyle="--", linewidth=0.9)
+        # a Youden cut is a split, not a bound: say how many lots of each band lie past it
+        side = "≥" if t["direction"] == "higher_better" else "≤"
+        top, bottom = t.get("top_beyond_cut", np.nan), t.get("bottom_beyond_cut", np.nan)
+        shares = (f"{side} cut: {100 * top:.0f} % of top, {100 * bottom:.0f} % of bottom lots"
+                  if np.isfinite(top) and np.isfinite(bottom) else "")
+        ax.set_title(f"{label}: cut {t['cut']:.4g} (J {t['youden_j']:.2f}, AUC {t['auc']:.2f})"
+                     f"\n{shares}".rstrip(), fontsize=7, loc="left")
 
 
 # --------------------------------------------------------------------------- where styles differ
@@ -397,8 +519,22 @@ def differences(data: Briefing, page: int) -> Figure:
         text_block(fig, 0.88, ["No grades were given, so styles could not be compared on "
                                "their drivers."], size=10)
         return _finish(fig, data, page)
-    drivers = data.profiles.drivers
-    contrasts = data.profiles.contrasts
+    _delta_grid(fig, data, data.profiles.drivers, data.profiles.contrasts)
+    fig.text(0.2, 0.395, "Red frame: a reversal (a driver in opposite directions in two "
+             "trusted styles).", fontsize=7, color=WARN_COLOUR)
+    y = heading(fig, 0.375, "What the comparisons say", size=10)
+    sentences = _contrast_sentences(data.profiles.contrasts)
+    y, written = text_block(fig, y, sentences, size=7.5, bullet="• ", width=120, gap=0.15,
+                            bottom=0.075)
+    if written < len(sentences):
+        text_block(fig, y, [f"... {len(sentences) - written} more in contrasts.csv."], size=7.5,
+                   bottom=0.03)
+    return _finish(fig, data, page)
+
+
+def _delta_grid(fig: Figure, data: Briefing, drivers: pd.DataFrame,
+                contrasts: pd.DataFrame) -> None:
+    """Cliff's delta per style (rows, the pooled range last) and analyte, reversals framed."""
     analytes = list(dict.fromkeys(drivers["analyte"]))
     rows = [*data.model.style_ids, POOLED]
     grid = np.full((len(rows), len(analytes)), np.nan)
@@ -412,11 +548,9 @@ def differences(data: Briefing, page: int) -> Figure:
                 mark[i, j] = "●" if r["is_driver"] else "○"
     ax = fig.add_axes([0.2, 0.52, 0.7, 0.36])
     image = ax.imshow(grid, cmap="PuOr_r", vmin=-1, vmax=1, aspect="auto")
-    for i in range(len(rows)):
-        for j in range(len(analytes)):
-            if mark[i, j]:
-                ax.text(j, i, mark[i, j], ha="center", va="center", fontsize=7,
-                        color="white" if abs(grid[i, j]) > 0.55 else INK)
+    for i, j in zip(*np.nonzero(mark != "")):
+        ax.text(j, i, mark[i, j], ha="center", va="center", fontsize=7,
+                color="white" if abs(grid[i, j]) > 0.55 else INK)
     ax.axhline(len(rows) - 1.5, color=INK, linewidth=1.2)
     untrusted = set(_untrusted(data)["style"])
     ax.set_yticks(range(len(rows)), [f"{s}{' (untrusted)' if s in untrusted else ''}"
@@ -432,21 +566,15 @@ def differences(data: Briefing, page: int) -> Figure:
     bar = fig.colorbar(image, ax=ax, fraction=0.04, pad=0.02)
     bar.set_label("Cliff's delta (no unit): + higher value in top lots", fontsize=7)
     bar.ax.tick_params(labelsize=6)
-    fig.text(0.2, 0.395, "Red frame: a reversal (a driver in opposite directions in two "
-             "trusted styles).", fontsize=7, color=WARN_COLOUR)
-    y = heading(fig, 0.375, "What the comparisons say", size=10)
+
+
+def _contrast_sentences(contrasts: pd.DataFrame) -> list[str]:
+    """The contrasts in words, reversals first, then misleading pooled results."""
     priority = {"reversal": 0, "pooled_misleading": 1, "style_specific": 2}
     ordered = contrasts.assign(_p=contrasts["kind"].map(priority)).sort_values("_p", kind="stable")
     sentences = [f"[{k.replace('_', ' ')}] {s}" for k, s in
                  zip(ordered["kind"], ordered["sentence"])]
-    if not sentences:
-        sentences = ["No analyte drives the grade differently between trusted styles."]
-    y, written = text_block(fig, y, sentences, size=7.5, bullet="• ", width=120, gap=0.15,
-                            bottom=0.075)
-    if written < len(sentences):
-        text_block(fig, y, [f"... {len(sentences) - written} more in contrasts.csv."], size=7.5,
-                   bottom=0.03)
-    return _finish(fig, data, page)
+    return sentences or ["No analyte drives the grade differently between trusted styles."]
 
 
 # --------------------------------------------------------------------------- new lots
@@ -513,7 +641,8 @@ def new_lots_table(data: Briefing, page: int) -> Figure:
         style = "no style" if r.style == UNASSIGNED else r.style
         first = f"{str(r.lot_id)[:13]:<14}{style:<10}{'YES' if r.atypical else '':<10}" \
                 f"{band[:17]:<18}"
-        chunks = wrap(str(details.loc[r.lot_id, "flags_short"]), 62)
+        # a lot with no flag worth showing has an empty flags_short: "-" in the table
+        chunks = wrap(str(details.loc[r.lot_id, "flags_short"]) or "-", 62)
         if len(chunks) > 2:
             chunks = [chunks[0], chunks[1][:58] + " ..."]
         if y - line * len(chunks) < 0.07 or shown >= MAX_TABLE_ROWS:
@@ -564,10 +693,10 @@ def data_quality(data: Briefing, page: int) -> Figure:
     y = mono_block(fig, y, rows, size=7.5, bold_first=True)
     text_block(fig, y - 0.02, [
         "Imputed: missing cells of used lots, filled from the "
-        f"{data.config.segment.impute_neighbours} most similar lots (scaled "
+        f"{data.model.config.segment.impute_neighbours} most similar lots (scaled "
         "chemistry) for the styles only; profiles leave them out.",
         "Censored: values written below (or above) a detection limit, stored by the "
-        f"'{data.config.ingest.censored}' rule and flagged per cell.",
+        f"'{data.model.config.ingest.censored}' rule and flagged per cell.",
     ], size=8)
     return _finish(fig, data, page)
 
@@ -575,12 +704,27 @@ def data_quality(data: Briefing, page: int) -> Figure:
 # --------------------------------------------------------------------------- methods and cautions
 
 
-def methods_text(config: Config) -> list[str]:
-    """The methods and cautions, with this run's settings in them."""
-    level = f"{100 * config.profile.ci_level:g} %"
-    low, high = config.profile.target_quantiles
+def methods_text(prof: ProfileSettings, min_style_lots: int,
+                 atypical_percentile: float) -> list[str]:
+    """The methods and cautions, with the settings of the results in them.
+
+    Parameters
+    ----------
+    prof : ProfileSettings
+        The settings the profiles were computed with.
+    min_style_lots : int
+        The model's ``segment.min_style_lots``.
+    atypical_percentile : float
+        The placements' ``place.atypical_percentile``.
+
+    Returns
+    -------
+    list of str
+        One paragraph per item.
+    """
+    level = f"{100 * prof.ci_level:g} %"
+    low, high = prof.target_quantiles
     window = f"{100 * (high - low):g} %"
-    prof, seg = config.profile, config.segment
     return [
         "Styles come from the chemistry alone: grades never shape them. Each analyte is "
         "log-transformed when strongly right-skewed, then scaled by its median and interquartile "
@@ -594,7 +738,8 @@ def methods_text(config: Config) -> list[str]:
         f"{level} interval comes from a seeded bootstrap of {prof.bootstrap} resamples. "
         "Hedges' g is the standardised mean difference.",
         "A driver is an analyte whose top and bottom lots differ beyond chance: its "
-        "Mann-Whitney p-value, corrected by the Benjamini-Hochberg false discovery rate over "
+        "Brunner-Munzel p-value (a test of P(top > bottom) = 1/2, what delta measures), "
+        "corrected by the Benjamini-Hochberg false discovery rate over "
         "every style and analyte of the briefing (the pooled rows form a family of their own), "
         f"is below {prof.fdr:g} and its delta interval excludes 0. A driver describes an "
         "association in these lots; it is not proof that changing the analyte changes the grade.",
@@ -603,25 +748,33 @@ def methods_text(config: Config) -> list[str]:
         "the top band's values. Neither is a specification: lots on the wrong side of a cut can "
         "grade well and the reverse.",
         f"Sample sizes: a band with fewer than {prof.min_band_lots} lots gets no effect size "
-        f"('insufficient'), and a style with fewer than {seg.min_style_lots} lots, or too few "
+        f"('insufficient'), and a style with fewer than {min_style_lots} lots, or too few "
         "top or bottom lots, is marked untrusted; its numbers are shown but should not guide "
         "decisions. Pooled results over the whole range mix styles and can hide a driver or "
         "reverse it; the 'where styles differ' page says where.",
         "New lots: a new lot is placed among the historical lots by its chemistry; 'atypical' "
         "means its chemistry is unusual for its style (outlier score above the "
-        f"{config.place.atypical_percentile:g}th percentile of the historical lots), 'fits no "
+        f"{atypical_percentile:g}th percentile of the historical lots), 'fits no "
         "style' that it resembles none. The indicative band is the share of its nearest "
         "historical lots of the same style in each band: an indication from neighbours, not a "
-        "forecast of its grade.",
+        "forecast of its grade. A driver flag judges a lot on its style's drivers together: its "
+        "place on each (its percentile among the style's lots) weighted by the driver's Cliff's "
+        "delta gives a driver score, and the lot is flagged only where the style's bottom-band "
+        "lots outnumber its top-band ones at that score; the flag names the one to three "
+        "drivers that pull the score down most.",
         "Screening limits (volatile acidity and total SO2 maxima, the sulfite labelling line, a "
-        "low molecular SO2 warning) are screening flags only, never compliance verdicts: "
-        "certified laboratory analyses and the local regulations decide.",
+        "low molecular SO2 warning) are screening flags only, never compliance verdicts: a lot "
+        "is flagged for a sulfite statement, it is not told it needs one (under the OIV, which "
+        "sets no labelling line, the EU line is used). " + VA_EXCEPTIONS + " Certified "
+        "laboratory analyses and the regulation in force decide.",
     ]
 
 
 def methods(data: Briefing, page: int) -> Figure:
     fig = new_page("Methods and cautions", "What the numbers mean, and what they do not.")
-    text_block(fig, 0.9, methods_text(data.config), size=9, width=100, gap=0.6)
+    text = methods_text(data.profile_settings, data.model.config.segment.min_style_lots,
+                        data.place_settings.atypical_percentile)
+    text_block(fig, 0.9, text, size=9, width=100, gap=0.6)
     return _finish(fig, data, page)
 
 
@@ -638,16 +791,88 @@ def provenance(data: Briefing, page: int) -> Figure:
         + (f", {source.delimiter}-delimited" if source.delimiter else "")
         + (f", sheet {source.sheet}" if source.sheet else "") + ")",
         f"input SHA-256: {source.sha256}",
-        f"config: {data.config.source}",
-        f"seed: {data.config.seed}",
-        f"clustering: space {params['space']}, components {params['components']}, neighbours "
-        f"{params['neighbours']}, epochs {params['epochs']}, min_cluster_size "
-        f"{params['min_cluster_size']}, min_samples {params['min_samples']}",
-        "software: " + ", ".join(f"{k} {v}" for k, v in model.versions.items()),
+        f"config: {model.config.source}",
+        f"seed: {params.seed}",
+        f"clustering: space {params.space}, components {params.components}, neighbours "
+        f"{params.neighbours}, epochs {params.epochs}, min_cluster_size "
+        f"{params.min_cluster_size}, min_samples {params.min_samples}",
     ]
+    for name, result in (("profiles", data.profiles), ("placements", data.placements)):
+        if result is not None:
+            lines.append(f"{name}: {json.dumps(result.settings.to_dict(), sort_keys=True)}")
+    lines += [f"briefing config: {data.config.source}",
+              "software: " + ", ".join(f"{k} {v}" for k, v in model.versions.items())]
     y, _ = text_block(fig, 0.9, lines, size=8.5, width=110, gap=0.2)
-    y = heading(fig, y - 0.01, "Configuration used", size=10)
+    y = heading(fig, y - 0.01, "Configuration of the model", size=10)
     config_lines = [f"{key}: {json.dumps(value, sort_keys=True)}"
-                    for key, value in sorted(data.config.to_dict().items())]
+                    for key, value in sorted(model.config.to_dict().items())]
     text_block(fig, y, config_lines, size=6.5, width=150, gap=0.15, bottom=0.04)
+    return _finish(fig, data, page)
+
+
+# --------------------------------------------------------------------------- since the previous
+
+MAX_SHIFTS = 4  # median shifts listed per style
+
+
+def _shift_rows(data: Briefing, comparison: Comparison) -> list[str]:
+    """The clearest median shifts of each kept style: interval clear of 0, largest in IQRs."""
+    shifts = comparison.shifts
+    clear = shifts[(shifts["ci_low"] > 0) | (shifts["ci_high"] < 0)].copy()
+    clear["size"] = (clear["shift"].abs() / clear["iqr_previous"].where(
+        clear["iqr_previous"] > 0)).fillna(0.0)
+    rows = []
+    for style, group in clear.groupby("style", sort=False):
+        for r in group.sort_values("size", ascending=False, kind="stable").head(MAX_SHIFTS)\
+                .itertuples():
+            unit = data.model.spec(r.analyte).unit
+            rows.append(f"{style:<6}{data.label(r.analyte)[:20]:<21}"
+                        f"{r.median_previous:>9.3g} -> {r.median:<9.3g}{unit[:12]:<13}"
+                        f"{r.shift:>+9.3g}  [{r.ci_low:+.3g}, {r.ci_high:+.3g}]")
+    return rows
+
+
+def since_previous(data: Briefing, page: int) -> Figure:
+    """Sizes then and now, median shifts with intervals, drivers that appeared or vanished."""
+    comparison = data.comparison
+    record = data.model.previous
+    fig = new_page("Since the previous model",
+                   f"Styles matched to the previous model (lots of {record.get('source', '?')}) "
+                   "by their centres in its scaled chemistry, at most "
+                   f"{float(record.get('limit', 0)):g} style spreads apart; a matched style "
+                   "keeps its id and its name.")
+    if comparison is None:
+        text_block(fig, 0.88, ["No previous model was given."], size=10)
+        return _finish(fig, data, page)
+    y = heading(fig, 0.89, "Styles then and now", size=10)
+    rows = [f"{'style':<8}{'name':<61}{'lots then':>10}{'lots now':>10}  status"]
+    for r in comparison.styles.itertuples():
+        sid = r.style or r.previous_style
+        name = r.style_name if r.status in (KEPT, NEW) else r.previous_name
+        then = "" if r.status == NEW else str(r.n_previous)
+        now = str(r.n_lots) if r.status != "vanished" else ""
+        rows.append(f"{sid:<8}{str(name)[:60]:<61}{then:>10}{now:>10}  {r.status}")
+    y = mono_block(fig, y, rows[:24], size=7.5, bold_first=True)
+    level = f"{100 * comparison.level:.0f} %"
+    y = heading(fig, y - 0.015, f"Median shifts of the kept styles ({level} bootstrap "
+                "intervals, clear of zero)", size=10)
+    shifts = _shift_rows(data, comparison)
+    if shifts:
+        head = (f"{'style':<6}{'analyte':<21}{'then':>9} -> {'now':<9}{'unit':<13}"
+                f"{'shift':>9}  interval")
+        y = mono_block(fig, y, [head, *shifts[:28]], size=7, bold_first=True)
+    else:
+        y, _ = text_block(fig, y, ["No median moved clearly (every interval holds zero)."],
+                          size=8.5)
+    y = heading(fig, y - 0.015, "Drivers that appeared or vanished", size=10)
+    drivers = comparison.drivers
+    if data.profiles is None or not data.model.has_grade:
+        lines = ["Without grades in both models the drivers cannot be compared."]
+    elif drivers.empty:
+        lines = ["The kept styles have the same drivers as before."]
+    else:
+        lines = [f"{style}: " + "; ".join(
+            f"{data.label(r.analyte)} {r.change}" for r in group.itertuples())
+            for style, group in drivers.groupby("style", sort=False)]
+    text_block(fig, y, lines, size=8, bottom=0.05)
     return _finish(fig, data, page)

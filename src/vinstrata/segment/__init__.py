@@ -7,12 +7,13 @@ Modules, in the order the stage runs::
     sweep       The HDBSCAN cluster-size sweep: candidates, their relative validity and the pick.
     joins       Joining clusters the embedding split apart, and dissolving groups that are no style.
     typicality  How typical a lot's chemistry is of a style: the outlier score.
-    names       Style names from their chemistry: short, readable and unique within a fit.
+    names       Style names: generated from their chemistry, or given by their users.
     styles      The style table: sizes, medians, names and the trust verdict of each style.
-    assign      Lots assigned to a fitted model's styles: HDBSCAN rebuilt, soft membership, typicality.
+    assign      Assigning lots to styles: HDBSCAN's prediction, soft membership, typicality.
     fit         Segmenting a range into styles from its chemistry alone.
     model       The style model: what segmentation learns, saved as plain data.
     outputs     The contract tables of the segment stage: lot_styles.csv and styles.csv.
+    previous    Styles that keep their ids and names from one fit to the next.
 """
 
 from vinstrata.lazy import attach
@@ -51,18 +52,37 @@ _NAMES = {
     "fill_noise": "vinstrata.segment.joins",
     "join_split_clusters": "vinstrata.segment.joins",
     "StyleShape": "vinstrata.segment.typicality",
-    "wilson_hilferty": "vinstrata.segment.typicality",
+    "log_chi2_tail": "vinstrata.segment.typicality",
+    "log_f_tail": "vinstrata.segment.typicality",
+    "z_of_log_tail": "vinstrata.segment.typicality",
     "distance_score": "vinstrata.segment.typicality",
+    "atypical_line": "vinstrata.segment.typicality",
     "fit_shape": "vinstrata.segment.typicality",
     "style_phrase": "vinstrata.segment.names",
     "name_styles": "vinstrata.segment.names",
+    "colour_mix": "vinstrata.segment.names",
+    "generated_names": "vinstrata.segment.names",
+    "apply_user_names": "vinstrata.segment.names",
+    "check_user_name": "vinstrata.segment.names",
+    "with_user_name": "vinstrata.segment.names",
     "trust_notes": "vinstrata.segment.styles",
+    "quantile_hints": "vinstrata.segment.styles",
     "describe_styles": "vinstrata.segment.styles",
+    "style_band_counts": "vinstrata.segment.styles",
+    "Prediction": "vinstrata.segment.assign",
+    "Assignment": "vinstrata.segment.assign",
+    "score_lots": "vinstrata.segment.assign",
+    "assign_lots": "vinstrata.segment.assign",
+    "group_memberships": "vinstrata.segment.assign",
+    "training_prediction": "vinstrata.segment.assign",
     "rebuild_clusterer": "vinstrata.segment.assign",
     "style_shapes": "vinstrata.segment.assign",
-    "group_memberships": "vinstrata.segment.assign",
+    "soft_memberships": "vinstrata.segment.assign",
+    "predict_styles": "vinstrata.segment.assign",
+    "place_in_styles": "vinstrata.segment.assign",
     "fit_styles": "vinstrata.segment.fit",
     "FORMAT_VERSION": "vinstrata.segment.model",
+    "SegmentParams": "vinstrata.segment.model",
     "software_versions": "vinstrata.segment.model",
     "StyleModel": "vinstrata.segment.model",
     "save_model": "vinstrata.segment.model",
@@ -71,6 +91,16 @@ _NAMES = {
     "STYLE_COLUMNS": "vinstrata.segment.outputs",
     "lot_styles": "vinstrata.segment.outputs",
     "style_table": "vinstrata.segment.outputs",
+    "style_centres": "vinstrata.segment.previous",
+    "match_cost": "vinstrata.segment.previous",
+    "match_styles": "vinstrata.segment.previous",
+    "rename_styles": "vinstrata.segment.previous",
+    "match_previous": "vinstrata.segment.previous",
+    "previous_table": "vinstrata.segment.previous",
+    "check_previous": "vinstrata.segment.previous",
+    "Comparison": "vinstrata.segment.previous",
+    "median_shift": "vinstrata.segment.previous",
+    "compare_models": "vinstrata.segment.previous",
 }
 
 __getattr__, __all__ = attach(__name__, _NAMES)

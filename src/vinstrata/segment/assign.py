@@ -1,8 +1,25 @@
-"""Lots assigned to a fitted model's styles: HDBSCAN rebuilt, soft membership, typicality."""
+"""Assigning lots to styles: HDBSCAN's prediction, soft membership, typicality.
+
+Fitting and placing assign lots the same way, through :func:`assign_lots`:
+
+* HDBSCAN's word on each lot (a :class:`Prediction`): its style, or none for
+  HDBSCAN noise, with its strength of membership; for training lots the fit's
+  own labels (:func:`training_prediction`), for new lots HDBSCAN's approximate
+  prediction against the rebuilt clusterer (:func:`predict_styles`);
+* its nearest style: its own, or for a lot without one the style of its
+  largest soft membership;
+* its outlier score against the nearest style's shape (typicality, judged in
+  the scaled chemistry, :mod:`vinstrata.segment.typicality`);
+* the "fits no style" rule: a lot scoring above the outlier cutoff is
+  unassigned. An unassigned lot keeps its nearest style, and its membership is
+  its soft membership to that style.
+"""
 
 from __future__ import annotations
 
 import warnings
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -10,6 +27,256 @@ from vinstrata.errors import InputError
 from vinstrata.segment.model import StyleModel
 from vinstrata.segment.sweep import fit_hdbscan
 from vinstrata.segment.typicality import StyleShape
+
+SoftMembership = Callable[[np.ndarray], np.ndarray]  # lot rows -> their membership to each style
+
+
+@dataclass(frozen=True)
+class Prediction:
+    """HDBSCAN's word on each lot, before typicality is judged.
+
+    Attributes
+    ----------
+    style_index : ndarray of int
+        The lot's style, -1 for HDBSCAN noise.
+    strength : ndarray of float
+        HDBSCAN's strength of membership in that style.
+    soft : callable
+        Rows (indices) -> their soft membership to every style, computed only
+        for the lots that need it.
+    """
+
+    style_index: np.ndarray
+    strength: np.ndarray
+    soft: SoftMembership
+
+
+@dataclass(frozen=True)
+class Assignment:
+    """Each lot's style after typicality.
+
+    Attributes
+    ----------
+    style_index : ndarray of int
+        The lot's style, -1 for unassigned (HDBSCAN noise or fits no style).
+    nearest_index : ndarray of int
+        Its own style, or for an unassigned lot the style it resembles most.
+    membership : ndarray of float
+        HDBSCAN's strength of membership, or for an unassigned lot its soft
+        membership to the nearest style.
+    outlier_score : ndarray of float
+        Typicality against the nearest style, as a z.
+    fits_none : ndarray of bool
+        Outlier score above the cutoff.
+    """
+
+    style_index: np.ndarray
+    nearest_index: np.ndarray
+    membership: np.ndarray
+    outlier_score: np.ndarray
+    fits_none: np.ndarray
+
+
+def score_lots(shapes: Sequence[StyleShape], nearest: np.ndarray, scaled: np.ndarray,
+               scores: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+    """Outlier scores of lots against their nearest style's shape, written into ``scores``.
+
+    Parameters
+    ----------
+    shapes : sequence of StyleShape
+        One per style, in style-index order.
+    nearest : ndarray of int
+        Each lot's nearest style.
+    scaled : ndarray
+        The lots' scaled chemistry.
+    scores : ndarray of float
+        Filled in place for the scored lots.
+    rows : ndarray of bool, optional
+        Score only these lots (all when None).
+
+    Returns
+    -------
+    ndarray of float
+        ``scores``.
+    """
+    for s, shape in enumerate(shapes):
+        mask = nearest == s if rows is None else rows & (nearest == s)
+        if mask.any():
+            scores[mask] = shape.score(scaled[mask])
+    return scores
+
+
+def assign_lots(prediction: Prediction, shapes: Sequence[StyleShape], scaled: np.ndarray,
+                cutoff: float) -> Assignment:
+    """Assign lots to styles: HDBSCAN's prediction, then the "fits no style" rule.
+
+    Parameters
+    ----------
+    prediction : Prediction
+        HDBSCAN's styles, strengths and soft membership of the lots.
+    shapes : sequence of StyleShape
+        Each style's typicality shape, in style-index order.
+    scaled : ndarray
+        The lots' scaled chemistry, in the rows of ``prediction``.
+    cutoff : float
+        Outlier score above which a lot fits no style (``segment.outlier_cutoff``).
+
+    Returns
+    -------
+    Assignment
+    """
+    predicted = prediction.style_index
+    nearest = predicted.copy()
+    membership = prediction.strength.copy()
+    loose = np.flatnonzero(predicted < 0)
+    if loose.size:
+        _to_nearest_soft(prediction.soft, loose, nearest, membership, pick=True)
+    scores = score_lots(shapes, nearest, scaled, np.empty(len(predicted)))
+    fits_none = scores > cutoff
+    turned = np.flatnonzero(fits_none & (predicted >= 0))
+    if turned.size:  # styled by HDBSCAN but unlike its style's chemistry: unassigned too
+        _to_nearest_soft(prediction.soft, turned, nearest, membership, pick=False)
+    return Assignment(style_index=np.where(fits_none, -1, predicted), nearest_index=nearest,
+                      membership=membership, outlier_score=scores, fits_none=fits_none)
+
+
+def _to_nearest_soft(soft: SoftMembership, rows: np.ndarray, nearest: np.ndarray,
+                     membership: np.ndarray, pick: bool) -> None:
+    """Give ``rows`` their soft membership to their nearest style (picked first if ``pick``)."""
+    vectors = soft(rows)
+    if pick:
+        nearest[rows] = np.argmax(vectors, axis=1)
+    membership[rows] = vectors[np.arange(rows.size), nearest[rows]]
+
+
+# --------------------------------------------------------------------------- HDBSCAN's numbering
+
+
+def label_order(clusterer: object, space: np.ndarray) -> np.ndarray:
+    """The fit's label (``labels_``) of each cluster as hdbscan's prediction functions number it.
+
+    hdbscan's prediction data selects its clusters from the condensed tree again and
+    numbers them in its own order, which can differ from ``labels_`` (seen on fits
+    holding several small clusters): label p of ``approximate_predict`` and column p
+    of a membership vector then belong to another cluster than label p of the fit, and
+    new lots land in the wrong style. The fit's own lots tell which is which: each
+    prediction label maps to the fit label most of its training lots carry (-1 when
+    none does).
+
+    Parameters
+    ----------
+    clusterer : hdbscan.HDBSCAN
+        Fitted, with prediction data.
+    space : ndarray
+        The training lots' clustering-space coordinates (the data it was fitted on).
+
+    Returns
+    -------
+    ndarray of int, one entry per prediction cluster
+    """
+    import hdbscan
+
+    labels = np.asarray(clusterer.labels_)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        predicted, _ = hdbscan.approximate_predict(clusterer, space)
+    n_predicted = len(clusterer.prediction_data_.exemplars)
+    order = np.full(n_predicted, -1, dtype=int)
+    for p in range(n_predicted):
+        theirs = labels[(predicted == p) & (labels >= 0)]
+        if theirs.size:
+            order[p] = int(np.bincount(theirs).argmax())
+    return order
+
+
+def _in_fit_order(style_of_cluster: Sequence[int], order: np.ndarray) -> list[int]:
+    """The style of each prediction cluster, from the style of each fit cluster."""
+    return [int(style_of_cluster[c]) if c >= 0 else -1 for c in order]
+
+
+# --------------------------------------------------------------------------- training lots
+
+
+def _sum_by_style(vectors: np.ndarray, style_of_cluster: Sequence[int], n_styles: int
+                  ) -> np.ndarray:
+    """Cluster memberships summed over each style's clusters (a cluster of style -1 is left out)."""
+    out = np.zeros((len(vectors), n_styles))
+    for c, s in enumerate(style_of_cluster):
+        if s >= 0:
+            out[:, s] += vectors[:, c]
+    return out
+
+
+def group_memberships(clusterer: object, group_of_cluster: np.ndarray, n_groups: int,
+                      space: np.ndarray) -> np.ndarray:
+    """Soft membership of every training lot to every group (sum over the group's clusters).
+
+    Parameters
+    ----------
+    clusterer : hdbscan.HDBSCAN
+        Fitted, with prediction data.
+    group_of_cluster : ndarray of int
+        Joined group of each cluster (-1: a dissolved cluster, left out).
+    n_groups : int
+        Number of groups.
+    space : ndarray
+        The lots' clustering-space coordinates (the data the clusterer was fitted on).
+
+    Returns
+    -------
+    ndarray, shape (n, n_groups)
+        Not normalised: a lot's memberships of dissolved clusters are left out.
+    """
+    import hdbscan
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        vectors = np.asarray(hdbscan.all_points_membership_vectors(clusterer), dtype=float)
+    groups = _in_fit_order([int(g) for g in group_of_cluster], label_order(clusterer, space))
+    return _sum_by_style(vectors.reshape(len(space), -1), groups, n_groups)
+
+
+def training_prediction(clusterer: object, space: np.ndarray, groups: np.ndarray,
+                        clusters: np.ndarray, probabilities: np.ndarray,
+                        group_of_cluster: np.ndarray, n_groups: int
+                        ) -> tuple[Prediction, np.ndarray]:
+    """HDBSCAN's word on its own training lots, in the joined groups of the fit.
+
+    Parameters
+    ----------
+    clusterer : hdbscan.HDBSCAN
+        The final fit (prediction data is generated on it when needed).
+    space : ndarray
+        The clustering-space coordinates it was fitted on.
+    groups : ndarray of int
+        Joined group of each lot, -1 for noise.
+    clusters, probabilities : ndarray
+        HDBSCAN's labels and strengths.
+    group_of_cluster : ndarray of int
+        Joined group of each cluster.
+    n_groups : int
+        Number of joined groups (0 or 1: one style).
+
+    Returns
+    -------
+    prediction : Prediction
+    soft : ndarray, shape (n_lots, max(n_groups, 1))
+        Soft membership of every lot to every group (not normalised).
+    """
+    n = len(clusters)
+    if n_groups <= 1:
+        # one style: HDBSCAN noise only marks the seams between the fragments
+        soft = np.ones((n, 1))
+        strength = np.where(clusters >= 0, probabilities, 1.0)
+        groups = np.zeros(n, dtype=int)
+    else:
+        clusterer.generate_prediction_data()
+        soft = group_memberships(clusterer, group_of_cluster, n_groups, space)
+        strength = probabilities
+    return Prediction(groups, np.asarray(strength, dtype=float), lambda rows: soft[rows]), soft
+
+
+# --------------------------------------------------------------------------- new lots
 
 
 def rebuild_clusterer(model: StyleModel) -> object:
@@ -22,7 +289,7 @@ def rebuild_clusterer(model: StyleModel) -> object:
         were changed, or another hdbscan version clusters differently).
     """
     params = model.params
-    clusterer = fit_hdbscan(model.space, params["min_cluster_size"], params["min_samples"],
+    clusterer = fit_hdbscan(model.space, params.min_cluster_size, params.min_samples,
                             prediction_data=True)
     if not np.array_equal(np.asarray(clusterer.labels_), model.clusters):
         raise InputError("model: the rebuilt HDBSCAN labels differ from the stored ones "
@@ -35,17 +302,90 @@ def style_shapes(model: StyleModel) -> dict[str, StyleShape]:
     return {sid: StyleShape.from_dict(d) for sid, d in model.outliers["shapes"].items()}
 
 
-def group_memberships(clusterer: object, group_of_cluster: np.ndarray, n_groups: int,
-                       n: int) -> np.ndarray:
-    """Soft membership of every lot to every group (sum over the group's clusters)."""
+def _style_of_cluster(model: StyleModel) -> list[int]:
+    position = {sid: s for s, sid in enumerate(model.style_ids)}
+    return [position.get(sid, -1) for sid in model.params.cluster_styles]
+
+
+def soft_memberships(model: StyleModel, clusterer: object | None, points: np.ndarray,
+                     style_of_cluster: Sequence[int] = ()) -> np.ndarray:
+    """Soft membership of new lots to every style (rows sum to 1), as segmentation gives it.
+
+    Parameters
+    ----------
+    model : StyleModel
+    clusterer : hdbscan.HDBSCAN or None
+        The rebuilt clusterer; None for a one-style model (equal shares).
+    points : ndarray
+        The lots' clustering-space coordinates.
+    style_of_cluster : sequence of int
+        The style of each prediction cluster (:func:`label_order`); worked out here
+        when not given.
+
+    Returns
+    -------
+    ndarray, shape (n_points, n_styles)
+    """
+    n_styles = len(model.style_ids)
+    if clusterer is None or not len(points):
+        return np.full((len(points), n_styles), 1.0 / n_styles)
     import hdbscan
 
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        vectors = np.asarray(hdbscan.all_points_membership_vectors(clusterer), dtype=float)
-    vectors = vectors.reshape(n, -1)
-    out = np.zeros((n, n_groups))
-    for c, g in enumerate(group_of_cluster):
-        if g >= 0:
-            out[:, g] += vectors[:, c]
-    return out
+        vectors = np.asarray(hdbscan.membership_vector(clusterer, points), dtype=float)
+    styles = list(style_of_cluster) or _in_fit_order(_style_of_cluster(model),
+                                                     label_order(clusterer, model.space))
+    soft = _sum_by_style(vectors.reshape(len(points), -1), styles, n_styles)
+    return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)
+
+
+def predict_styles(model: StyleModel, space: np.ndarray) -> Prediction:
+    """HDBSCAN's approximate prediction for new lots at ``space`` against the stored model.
+
+    Parameters
+    ----------
+    model : StyleModel
+    space : ndarray
+        The new lots' clustering-space coordinates.
+
+    Returns
+    -------
+    Prediction
+        In the model's style order; soft membership from the rebuilt clusterer.
+    """
+    n = len(space)
+    if model.params.one_style:
+        return Prediction(np.zeros(n, dtype=int), np.ones(n),
+                          lambda rows: soft_memberships(model, None, space[rows]))
+    import hdbscan
+
+    clusterer = rebuild_clusterer(model)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        clusters, strength = hdbscan.approximate_predict(clusterer, space)
+    style_of_cluster = _in_fit_order(_style_of_cluster(model), label_order(clusterer, model.space))
+    style_index = np.array([style_of_cluster[c] if c >= 0 else -1 for c in clusters], dtype=int)
+    return Prediction(style_index, np.asarray(strength, dtype=float).copy(),
+                      lambda rows: soft_memberships(model, clusterer, space[rows],
+                                                    style_of_cluster))
+
+
+def place_in_styles(model: StyleModel, space: np.ndarray, scaled: np.ndarray) -> Assignment:
+    """New lots assigned to the model's styles, the way its training lots were.
+
+    Parameters
+    ----------
+    model : StyleModel
+    space : ndarray
+        The new lots' clustering-space coordinates.
+    scaled : ndarray
+        Their scaled chemistry.
+
+    Returns
+    -------
+    Assignment
+    """
+    shapes = style_shapes(model)
+    return assign_lots(predict_styles(model, space), [shapes[sid] for sid in model.style_ids],
+                       scaled, float(model.outliers["cutoff"]))

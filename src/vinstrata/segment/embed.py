@@ -190,7 +190,10 @@ def layouts(graph: scipy.sparse.coo_matrix, data: np.ndarray,
         return [layout(graph, data, jobs[0][0], jobs[0][1], n_epochs, jobs[0][2])]
     from concurrent.futures import ThreadPoolExecutor
 
-    with ThreadPoolExecutor(max_workers=min(2, len(jobs))) as pool:
+    # each layout silences umap-learn's warnings with catch_warnings, which swaps the
+    # process-wide filter list and is not thread-safe; one outer context here restores
+    # the caller's filters once both threads are done, so no "ignore" is left behind
+    with warnings.catch_warnings(), ThreadPoolExecutor(max_workers=min(2, len(jobs))) as pool:
         futures = [pool.submit(layout, graph, data, dim, seed, n_epochs, min_dist)
                    for dim, seed, min_dist in jobs]
         return [f.result() for f in futures]

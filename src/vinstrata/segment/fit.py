@@ -24,10 +24,12 @@ validated lot table:
    comparing settings on the same data); candidates within 0.02 of the best
    count as ties, and a tie goes to fewer unassigned lots, then to the larger
    size;
-6. lots that fit no style: UMAP also pulls lots unlike any style into the
+6. lots that fit no style (:func:`vinstrata.segment.assign.assign_lots`, the
+   rule placing applies to new lots too): UMAP also pulls lots unlike any style into the
    nearest cluster, or gathers lots of random chemistry into clusters of their
-   own. A group spread wider than the range itself (:func:`drop_diffuse`) is
-   no style and is dissolved; and typicality is judged in the scaled chemistry,
+   own. A group spread as evenly as the range itself (its IQR a large share of the
+   range's 1 %-99 % span, :func:`drop_diffuse`) is no style and is dissolved;
+   and typicality is judged in the scaled chemistry,
    by the outlier score of :mod:`vinstrata.segment.typicality` (a robust Mahalanobis
    distance to the style). HDBSCAN noise lots and lots scoring above
    ``segment.outlier_cutoff`` are ``unassigned``; they keep their nearest style
@@ -48,18 +50,24 @@ Grades are never used to form styles; they only enter the trust verdict.
 
 from __future__ import annotations
 
+import dataclasses
+from dataclasses import dataclass
+
 import numpy as np
 import pandas as pd
 
 from vinstrata.config import AUTO, Config
 from vinstrata.errors import InputError
 from vinstrata.progress import Reporter
+from vinstrata.read.hints import rejection_hints
+from vinstrata.read.ingest import Source
 from vinstrata.read.lots import UNASSIGNED, LotTable
 from vinstrata.segment import embed
-from vinstrata.segment.assign import group_memberships
-from vinstrata.segment.model import StyleModel, software_versions
-from vinstrata.segment.styles import describe_styles
+from vinstrata.segment.assign import Assignment, assign_lots, score_lots, training_prediction
+from vinstrata.segment.model import SegmentParams, StyleModel, software_versions
+from vinstrata.segment.styles import describe_styles, quantile_hints, style_band_counts
 from vinstrata.segment.sweep import (
+    Clustering,
     choose_size,
     default_min_samples,
     evaluate,
@@ -68,8 +76,13 @@ from vinstrata.segment.sweep import (
     sweep_sizes,
     sweep_table,
 )
-from vinstrata.segment.transform import censored_at_limit, fit_scaler, scale_chemistry
-from vinstrata.segment.typicality import fit_shape
+from vinstrata.segment.transform import (
+    ChemistryScaler,
+    censored_at_limit,
+    fit_scaler,
+    scale_chemistry,
+)
+from vinstrata.segment.typicality import StyleShape, fit_shape
 
 MIN_LOTS = 10  # fewer used lots than this cannot be segmented
 
@@ -96,140 +109,322 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     """
     rep = reporter or Reporter()
     seg = config.segment
-    seed = int(config.seed)
+    lots = _used_lots(table)
+    scaler, scaled = _scale_lots(lots, config, rep)
+    embedding = _embed_lots(scaled, seg.space, seg.components, seg.neighbours, seg.epochs,
+                            seg.map_min_dist, int(config.seed))
+    results, fitted = _sweep_clusters(embedding.space, scaled, seg.min_cluster_size,
+                                      seg.min_samples, seg.sweep, seg.merge_valley, rep)
+    final = choose_size(results)
+    grouped, soft, shapes = _assign_groups(embedding.space, scaled, final, fitted,
+                                           seg.outlier_cutoff)
+    styles = _order_styles(grouped, soft, shapes, scaled)
+    style_frame, stats = _describe(lots, table, scaled, scaler.analytes, styles, config)
+    _report_styles(style_frame, rep)
+    return StyleModel(
+        config=config, source=table.source, specs=table.specs, scaler=scaler,
+        rows=_row_status(table), lots=_lot_frame(lots.ids, styles, final, embedding.map2d),
+        values=lots.values, flags=lots.flags.astype(str), extra=table.extra.astype(str),
+        scaled=scaled, space=np.asarray(embedding.space, dtype=np.float32),
+        map2d=np.asarray(embedding.map2d, dtype=np.float32),
+        clusters=final.clusters.astype(np.int64),
+        memberships=styles.soft.astype(np.float64), styles=style_frame, style_stats=stats,
+        sweep=sweep_table(results, final),
+        params=_segment_params(config, embedding, final, styles),
+        outliers=_outlier_reference(seg.outlier_cutoff, styles),
+        versions=software_versions(), has_grade=table.has_grade,
+    )
+
+
+# --------------------------------------------------------------------------- the steps
+
+
+@dataclass(frozen=True)
+class _TrainingLots:
+    """The used lots of a table, numbered from 0 in file order."""
+
+    values: pd.DataFrame
+    flags: pd.DataFrame
+    ids: pd.DataFrame
+    source: Source
+
+    @property
+    def grades(self) -> np.ndarray:
+        return self.ids["grade"].to_numpy(dtype=float)
+
+
+def _used_lots(table: LotTable) -> _TrainingLots:
+    """The used lots of ``table``; refuses a table with fewer than :data:`MIN_LOTS` of them."""
     used = table.used
     n = int(used.sum())
     if n < MIN_LOTS:
-        raise InputError(f"{table.source.name}: only {n} usable lots; at least {MIN_LOTS} are "
-                         "needed to form styles")
-    values = table.values.loc[used].reset_index(drop=True)
-    flags = table.flags.loc[used].reset_index(drop=True)
-    ids = table.ids.loc[used].reset_index(drop=True)
+        # the column behind the rejections first: "too few lots" alone hides the cause
+        why = "".join(f"{line}; " for line in rejection_hints(table))
+        raise InputError(f"{table.source.name}: {why}only {n} usable lots; at least {MIN_LOTS} "
+                         "are needed to form styles")
+    return _TrainingLots(values=table.values.loc[used].reset_index(drop=True),
+                        flags=table.flags.loc[used].reset_index(drop=True),
+                        ids=table.ids.loc[used].reset_index(drop=True), source=table.source)
 
-    scaler, notes = fit_scaler(censored_at_limit(values, flags, config.ingest.censored),
+
+def _scale_lots(lots: _TrainingLots, config: Config, rep: Reporter
+                ) -> tuple[ChemistryScaler, np.ndarray]:
+    """Fit the transform and robust scaling on the lots, and their scaled, imputed chemistry."""
+    seg = config.segment
+    scaler, notes = fit_scaler(censored_at_limit(lots.values, lots.flags, config.ingest.censored),
                                seg.skew_threshold, dict(seg.transforms))
     for note in notes:
         rep.warn(note)
     if not scaler.transforms:
-        raise InputError(f"{table.source.name}: every analyte is constant or empty; "
+        raise InputError(f"{lots.source.name}: every analyte is constant or empty; "
                          "no chemistry to form styles from")
-    scaled = scale_chemistry(values, flags, scaler, config)
+    return scaler, scale_chemistry(lots.values, lots.flags, scaler, config)
 
-    # the clustering space and the map
-    k_graph = min(seg.neighbours, n - 1)
-    neighbours = embed.nearest(scaled, k_graph + 1)
-    epochs = embed.default_epochs(n) if seg.epochs == AUTO else int(seg.epochs)
-    graph = embed.fuzzy_graph(neighbours)
-    jobs = [(2, seed + 1, seg.map_min_dist)]
-    if seg.space == "umap":
-        jobs.insert(0, (min(seg.components, max(2, n - 2)), seed, 0.0))
-    embedded = embed.layouts(graph, scaled, jobs, epochs)
-    map2d = embedded[-1]
-    space = embedded[0] if seg.space == "umap" else scaled.astype(np.float32)
 
-    # HDBSCAN, joined clusters, chosen size
-    sizes = (sweep_sizes(n, seg.sweep) if seg.min_cluster_size == AUTO
-             else [min(int(seg.min_cluster_size), n - 1)])
-    candidates = [(size, min(default_min_samples(size) if seg.min_samples == AUTO
-                             else int(seg.min_samples), n - 1)) for size in sizes]
+@dataclass(frozen=True)
+class _Embedding:
+    """The clustering space and the 2-D map, with the settings they resolved to."""
+
+    space: np.ndarray
+    map2d: np.ndarray
+    neighbours: int
+    epochs: int
+
+
+def _embed_lots(scaled: np.ndarray, space: str, components: int, neighbours: int,
+                epochs: int | str, map_min_dist: float, seed: int) -> _Embedding:
+    """UMAP of the scaled chemistry: the clustering space (or the chemistry) and the map.
+
+    The two layouts share one fuzzy graph; the clustering space is seeded with
+    ``seed``, the map with ``seed + 1``.
+    """
+    n = len(scaled)
+    k_graph = min(neighbours, n - 1)
+    graph = embed.fuzzy_graph(embed.nearest(scaled, k_graph + 1))
+    n_epochs = embed.default_epochs(n) if epochs == AUTO else int(epochs)
+    jobs = [(2, seed + 1, map_min_dist)]
+    if space == "umap":
+        jobs.insert(0, (min(components, max(2, n - 2)), seed, 0.0))
+    embedded = embed.layouts(graph, scaled, jobs, n_epochs)
+    clustering = embedded[0] if space == "umap" else scaled.astype(np.float32)
+    return _Embedding(space=clustering, map2d=embedded[-1], neighbours=int(k_graph),
+                     epochs=int(n_epochs))
+
+
+def _sweep_clusters(space: np.ndarray, scaled: np.ndarray, min_cluster_size: int | str,
+                    min_samples: int | str, sweep: tuple[float, ...], merge_valley: float,
+                    rep: Reporter) -> tuple[list[Clustering], dict[tuple[int, int], object]]:
+    """HDBSCAN with split clusters joined, for each candidate cluster size (one when fixed).
+
+    Returns
+    -------
+    results : list of Clustering
+        One per candidate, in size order.
+    fitted : dict
+        (size, samples) -> the clusterers fitted in full on the way.
+    """
+    n = len(space)
+    sizes = ([min(int(min_cluster_size), n - 1)] if min_cluster_size != AUTO
+             else sweep_sizes(n, sweep))
+    candidates = [(size, min(default_min_samples(size) if min_samples == AUTO
+                             else int(min_samples), n - 1)) for size in sizes]
     labels, trees, fitted = sweep_labels(space, candidates)
     results = []
     for i, (size, samples) in enumerate(candidates):
-        results.append(evaluate(space, scaled, size, samples, seg.merge_valley,
+        results.append(evaluate(space, scaled, size, samples, merge_valley,
                                 *labels[(size, samples)], trees[samples]))
         rep.bar(i + 1, len(candidates), "  cluster-size sweep")
-    final = choose_size(results)
+    return results, fitted
+
+
+def _final_clusterer(space: np.ndarray, final: Clustering,
+                     fitted: dict[tuple[int, int], object]) -> object:
+    """The HDBSCAN fit of the chosen candidate, checked against the sweep's labels."""
     key = (final.min_cluster_size, final.min_samples)
     clusterer = fitted.get(key) or fit_hdbscan(space, *key)
     if not np.array_equal(np.asarray(clusterer.labels_), final.clusters):
         raise RuntimeError("HDBSCAN's sweep labels and its fit disagree")
-    groups = final.groups
-    n_groups = max(final.n_groups, 1)
-    if final.n_groups <= 1:
-        # one style: HDBSCAN noise only marks the seams between the fragments
-        groups = np.zeros(n, dtype=int)
-        soft = np.ones((n, 1))
-        strength = np.where(final.clusters >= 0, final.probabilities, 1.0)
-    else:
-        clusterer.generate_prediction_data()
-        soft = group_memberships(clusterer, final.group_of_cluster, n_groups, n)
-        strength = final.probabilities
-    nearest_group = np.where(groups >= 0, groups, np.argmax(soft, axis=1))
+    return clusterer
 
-    # typicality in the scaled chemistry: lots that fit no style
-    shapes = [fit_shape(scaled[groups == g]) for g in range(n_groups)]
-    scores = np.empty(n)
-    for g in range(n_groups):
-        mask = nearest_group == g
-        scores[mask] = shapes[g].score(scaled[mask])
-    groups = np.where(scores > seg.outlier_cutoff, -1, groups)
 
-    # ids S1..Sk, largest first (ties by group order)
-    group_sizes = np.bincount(groups[groups >= 0], minlength=n_groups)
-    order = sorted(range(n_groups), key=lambda g: (-group_sizes[g], g))
-    order = [g for g in order if group_sizes[g] > 0] or [order[0]]
+def _assign_groups(space: np.ndarray, scaled: np.ndarray, final: Clustering,
+                   fitted: dict[tuple[int, int], object], cutoff: float
+                   ) -> tuple[Assignment, np.ndarray, list[StyleShape]]:
+    """The lots assigned to the chosen candidate's joined groups, before they become styles.
+
+    Returns the assignment in group indices, the soft membership of each lot to
+    each group and each group's typicality shape (fitted on its HDBSCAN members).
+    """
+    prediction, soft = training_prediction(
+        _final_clusterer(space, final, fitted), space, final.groups, final.clusters,
+        final.probabilities, final.group_of_cluster, final.n_groups)
+    shapes = [fit_shape(scaled[prediction.style_index == g])
+              for g in range(max(final.n_groups, 1))]
+    return assign_lots(prediction, shapes, scaled, cutoff), soft, shapes
+
+
+@dataclass(frozen=True)
+class _StyleOrder:
+    """The styles S1 ... Sk, largest first, and the lots assigned to them.
+
+    Attributes
+    ----------
+    ids : list of str
+        ``S1`` ... ``Sk``.
+    order : list of int
+        The joined group behind each style.
+    assignment : Assignment
+        The lots in style indices.
+    soft : ndarray
+        Soft membership of each lot to each style (rows sum to 1).
+    shapes : list of StyleShape
+        Each style's typicality shape.
+    """
+
+    ids: list[str]
+    order: list[int]
+    assignment: Assignment
+    soft: np.ndarray
+    shapes: list[StyleShape]
+
+    @property
+    def rank(self) -> dict[int, int]:
+        """Style index of each group that became a style."""
+        return {g: k for k, g in enumerate(self.order)}
+
+
+def _order_styles(grouped: Assignment, soft: np.ndarray, shapes: list[StyleShape],
+                  scaled: np.ndarray) -> _StyleOrder:
+    """Number the groups S1 ... Sk, largest first (ties by group order), after typicality.
+
+    A group the typicality step emptied is no style; a lot whose nearest group
+    it was takes its nearest remaining style (by soft membership) and is scored
+    again against it.
+
+    Parameters
+    ----------
+    grouped : Assignment
+        The lots assigned in group indices.
+    soft : ndarray
+        Soft membership of each lot to each group.
+    shapes : list of StyleShape
+        Each group's typicality shape.
+    scaled : ndarray
+        The lots' scaled chemistry.
+
+    Returns
+    -------
+    _StyleOrder
+    """
+    groups, nearest_group = grouped.style_index, grouped.nearest_index
+    sizes = np.bincount(groups[groups >= 0], minlength=len(shapes))
+    order = sorted(range(len(shapes)), key=lambda g: (-sizes[g], g))
+    order = [g for g in order if sizes[g] > 0] or [order[0]]
     rank = {g: k for k, g in enumerate(order)}
-    style_ids = [f"S{k + 1}" for k in range(len(order))]
     soft_styles = soft[:, order]
     soft_styles = soft_styles / np.maximum(soft_styles.sum(axis=1, keepdims=True), 1e-12)
     style_index = np.array([rank.get(int(g), -1) if g >= 0 else -1 for g in groups])
-    nearest_index = np.array([rank[int(g)] if int(g) in rank else int(np.argmax(soft_styles[i]))
-                              for i, g in enumerate(nearest_group)])
-    nearest_index = np.where(style_index >= 0, style_index, nearest_index)
-    membership = np.where(style_index >= 0, strength, soft_styles[np.arange(n), nearest_index])
+    nearest = np.array([rank[int(g)] if int(g) in rank else int(np.argmax(soft_styles[i]))
+                        for i, g in enumerate(nearest_group)])
+    nearest = np.where(style_index >= 0, style_index, nearest)
+    membership = np.where(style_index >= 0, grouped.membership,
+                          soft_styles[np.arange(len(groups)), nearest])
     style_shapes = [shapes[g] for g in order]
-    # a lot whose nearest group was emptied by the typicality step is scored again
-    # against its nearest remaining style
-    training_scores = scores.copy()
     moved = np.array([int(g) not in rank for g in nearest_group], dtype=bool)
-    for s, shape in enumerate(style_shapes):
-        mask = moved & (nearest_index == s)
-        if mask.any():
-            training_scores[mask] = shape.score(scaled[mask])
+    scores = score_lots(style_shapes, nearest, scaled, grouped.outlier_score.copy(), rows=moved)
+    assignment = Assignment(style_index=style_index, nearest_index=nearest,
+                            membership=membership, outlier_score=scores,
+                            fits_none=grouped.fits_none)
+    return _StyleOrder(ids=[f"S{k + 1}" for k in range(len(order))], order=order,
+                      assignment=assignment, soft=soft_styles, shapes=style_shapes)
 
-    styles, stats = describe_styles(values, scaled, scaler.analytes, style_index,
-                                    nearest_index, style_ids,
-                                    table, config, ids["grade"].to_numpy(dtype=float))
+
+def _describe(lots: _TrainingLots, table: LotTable, scaled: np.ndarray,
+              analytes: tuple[str, ...], styles: _StyleOrder, config: Config
+              ) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The style table and statistics, with the trust verdict from the band counts."""
+    a = styles.assignment
+    band_n = (style_band_counts(lots.grades, a.style_index, a.nearest_index, styles.ids,
+                                config.bands, config.profile.include_unassigned)
+              if table.has_grade else None)
+    described, stats = describe_styles(lots.values, scaled, table.specs, analytes,
+                                       a.style_index, styles.ids, band_n,
+                                       config.segment.min_style_lots,
+                                       config.profile.min_band_lots, config.bands.labels,
+                                       _lot_colours(table, config))
+    if band_n is not None and config.bands.mode == "global":
+        # a style the global cuts leave short of top or bottom lots is told what its own
+        # grade quantiles would give it, and how to switch
+        per_style = dataclasses.replace(config.bands, mode="style_quantile")
+        quantile_n = style_band_counts(lots.grades, a.style_index, a.nearest_index, styles.ids,
+                                       per_style, config.profile.include_unassigned)
+        described["trust_note"] = quantile_hints(
+            list(described["trust_note"]), described["n_lots"].to_numpy(), band_n, quantile_n,
+            config.segment.min_style_lots, config.profile.min_band_lots, config.bands.labels)
+    return described, stats
+
+
+def _lot_colours(table: LotTable, config: Config) -> np.ndarray | None:
+    """The used lots' colours from ``limits.colour_column`` (normalised), None without one."""
+    column = config.limits.colour_column
+    if not column or column not in table.extra.columns:
+        return None
+    from vinstrata.place.limits import normalise_colour
+
+    return np.array([normalise_colour(v) for v in table.extra.loc[table.used, column]],
+                    dtype=object)
+
+
+def _report_styles(styles: pd.DataFrame, rep: Reporter) -> None:
     for _, row in styles.iterrows():
         if not row["trusted"]:
             rep.warn(f"style {row['style']} ({row['style_name']}, {row['n_lots']} lots) is "
                      f"untrusted: {row['trust_note']}")
-    if len(order) == 1:
+    if len(styles) == 1:
         rep.line("  one style: the chemistry shows no separate styles")
 
-    lots = pd.DataFrame({
+
+def _lot_frame(ids: pd.DataFrame, styles: _StyleOrder, final: Clustering,
+               map2d: np.ndarray) -> pd.DataFrame:
+    """The model's ``lots`` table: each training lot's style, membership, score and place."""
+    a = styles.assignment
+    return pd.DataFrame({
         "lot_id": ids["lot_id"].astype(str), "row": ids["row"].astype(int),
         "grade": ids["grade"].astype(float),
-        "style": np.array([style_ids[s] if s >= 0 else UNASSIGNED for s in style_index],
+        "style": np.array([styles.ids[s] if s >= 0 else UNASSIGNED for s in a.style_index],
                           dtype=object),
-        "style_index": style_index.astype(int), "membership": membership.astype(float),
-        "outlier_score": training_scores.astype(float),
-        "nearest_style": np.array(style_ids, dtype=object)[nearest_index],
+        "style_index": a.style_index.astype(int), "membership": a.membership.astype(float),
+        "outlier_score": a.outlier_score.astype(float),
+        "nearest_style": np.array(styles.ids, dtype=object)[a.nearest_index],
         "cluster": final.clusters.astype(int),
         "map_x": map2d[:, 0].astype(float), "map_y": map2d[:, 1].astype(float),
     })
-    params = {
-        "space": seg.space, "components": int(space.shape[1]), "neighbours": int(k_graph),
-        "epochs": int(epochs), "min_cluster_size": int(final.min_cluster_size),
-        "min_samples": int(final.min_samples), "seed": seed,
-        "size_choice": "sweep" if seg.min_cluster_size == AUTO else "fixed",
-        "merge_valley": float(seg.merge_valley), "n_clusters": int(final.n_clusters),
-        "cluster_styles": [style_ids[rank[int(g)]] if int(g) in rank else ""
-                           for g in final.group_of_cluster],
-        "one_style": len(order) == 1, "map_min_dist": float(seg.map_min_dist),
-    }
-    outliers = {
-        "cutoff": float(seg.outlier_cutoff),
-        "shapes": {sid: shape.to_dict() for sid, shape in zip(style_ids, style_shapes)},
-    }
+
+
+def _segment_params(config: Config, embedding: _Embedding, final: Clustering,
+                    styles: _StyleOrder) -> SegmentParams:
+    """The clustering settings of the fit, as resolved (stored in ``model.json``)."""
+    seg = config.segment
+    rank = styles.rank
+    return SegmentParams(
+        space=seg.space, components=int(embedding.space.shape[1]),
+        neighbours=embedding.neighbours, epochs=embedding.epochs,
+        min_cluster_size=int(final.min_cluster_size), min_samples=int(final.min_samples),
+        seed=int(config.seed), size_choice="sweep" if seg.min_cluster_size == AUTO else "fixed",
+        merge_valley=float(seg.merge_valley), n_clusters=int(final.n_clusters),
+        cluster_styles=tuple(styles.ids[rank[int(g)]] if int(g) in rank else ""
+                             for g in final.group_of_cluster),
+        one_style=len(styles.ids) == 1, map_min_dist=float(seg.map_min_dist),
+    )
+
+
+def _outlier_reference(cutoff: float, styles: _StyleOrder) -> dict[str, object]:
+    """The cutoff and each style's typicality shape, for scoring new lots."""
+    return {"cutoff": float(cutoff),
+            "shapes": {sid: shape.to_dict() for sid, shape in zip(styles.ids, styles.shapes)}}
+
+
+def _row_status(table: LotTable) -> pd.DataFrame:
     rows = table.ids[["row", "lot_id", "status", "detail"]].copy()
     rows["lot_id"] = rows["lot_id"].astype(str)
-    return StyleModel(
-        config=config, source=table.source, specs=table.specs, scaler=scaler, rows=rows,
-        lots=lots, values=values, flags=flags.astype(str), extra=table.extra.astype(str),
-        scaled=scaled, space=np.asarray(space, dtype=np.float32),
-        map2d=np.asarray(map2d, dtype=np.float32), clusters=final.clusters.astype(np.int64),
-        memberships=soft_styles.astype(np.float64), styles=styles, style_stats=stats,
-        sweep=sweep_table(results, final), params=params, outliers=outliers,
-        versions=software_versions(), has_grade=table.has_grade,
-    )
+    return rows

@@ -7,7 +7,11 @@ from sklearn.covariance import ledoit_wolf
 
 from vinstrata.segment import embed
 
-DIFFUSE = 1.1  # a group spread wider than the range itself (median IQR ratio) is no style
+# A group whose IQR is this share of the range's 1 %-99 % span (median over analytes) is no
+# style: lots spread evenly over the range (uniform) reach 0.5, a normal-shaped style 0.29
+# even when it is the whole range, and less beside other styles.
+DIFFUSE = 0.4
+SPAN = (0.01, 0.99)
 
 
 def lot_groups(clusters: np.ndarray, group_of_cluster: np.ndarray) -> np.ndarray:
@@ -17,27 +21,50 @@ def lot_groups(clusters: np.ndarray, group_of_cluster: np.ndarray) -> np.ndarray
     return np.where(clusters >= 0, group_of_cluster[np.maximum(clusters, 0)], -1)
 
 
-def spread(scaled: np.ndarray) -> float:
-    """Median over analytes of the interquartile range, in units of the range's own IQR."""
+def spread(scaled: np.ndarray, reference: np.ndarray | None = None) -> float:
+    """Median over analytes of a group's IQR, in units of the range's 1 %-99 % span.
+
+    Parameters
+    ----------
+    scaled : ndarray
+        The group's lots (rows) in the scaled chemistry.
+    reference : ndarray, optional
+        The whole range's lots; the group itself when None.
+
+    Returns
+    -------
+    float
+        NaN when no analyte has a span (every analyte constant over the range).
+    """
+    reference = scaled if reference is None else reference
+    lo, hi = np.quantile(reference, SPAN, axis=0)
     q25, q75 = np.quantile(scaled, [0.25, 0.75], axis=0)
-    return float(np.median(q75 - q25))
+    span = hi - lo
+    ratio = np.where(span > 0, (q75 - q25) / np.where(span > 0, span, 1.0), np.nan)
+    return float(np.nanmedian(ratio)) if np.isfinite(ratio).any() else float("nan")
 
 
 def drop_diffuse(scaled: np.ndarray, clusters: np.ndarray, group_of_cluster: np.ndarray
                  ) -> np.ndarray:
-    """Dissolve groups spread wider than the range itself; renumber the others.
+    """Dissolve groups spread as evenly as the range itself; renumber the others.
 
-    A style is a part of the range, so its lots cannot spread wider than the
-    whole range does. Lots of random chemistry scattered over the range, which
-    UMAP gathers into clusters of their own, do: their median IQR across
-    analytes exceeds the range's (the scaled chemistry has IQR 1 by
-    construction) by more than 10 %. Their clusters get group -1.
+    Lots of random chemistry scattered over the range, which UMAP gathers into
+    clusters of their own, have per analyte an interquartile range about half
+    the range's 1 %-99 % span (what a uniform spread gives); a style, even a
+    broad one holding most of the range, is peaked: a normal-shaped one has
+    0.29 of its own span, and less of a range that other styles widen. A group
+    whose median ratio over analytes exceeds :data:`DIFFUSE` (0.4) gets group -1.
+
+    The yardstick is the range's span, not its IQR: a tight style sitting in the
+    middle of a broad one narrows the range's IQR below the broad style's own,
+    which would dissolve the broad style, while the span hardly moves.
     """
     n_groups = int(group_of_cluster.max() + 1) if group_of_cluster.size else 0
     if n_groups < 2:
         return group_of_cluster
     groups = lot_groups(clusters, group_of_cluster)
-    keep = [g for g in range(n_groups) if spread(scaled[groups == g]) <= DIFFUSE]
+    keep = [g for g in range(n_groups)
+            if not spread(scaled[groups == g], scaled) > DIFFUSE]
     if not keep:
         return group_of_cluster
     renumber = {g: k for k, g in enumerate(keep)}

@@ -7,6 +7,7 @@ import pandas as pd
 
 from vinstrata.read.lots import USED
 from vinstrata.segment.model import StyleModel
+from vinstrata.segment.names import apply_user_names
 
 LOT_STYLE_COLUMNS = ("lot_id", "status", "style", "style_name", "membership", "outlier_score",
                      "nearest_style", "map_x", "map_y")
@@ -47,5 +48,11 @@ def lot_styles(model: StyleModel) -> pd.DataFrame:
 
 def style_table(model: StyleModel) -> pd.DataFrame:
     """``styles.csv``: ``style, style_name, n_lots, share, trusted``, then the median of
-    each analyte (canonical units), then ``trust_note`` and the band counts."""
-    return model.styles.copy()
+    each analyte (canonical units), then ``trust_note``, the band counts, ``generated_name``
+    and (with a colour column) ``colour_mix``.
+
+    ``style_name`` is the name a user gave the style (``vinstrata name``) where there is
+    one, else the generated name; a model saved before names could be given gains its
+    ``generated_name`` column here.
+    """
+    return apply_user_names(model.styles, model.user_names)
