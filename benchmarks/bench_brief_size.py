@@ -1,7 +1,7 @@
 """Briefing size and time for a range of 100,000 lots (scatter layers rasterised).
 
 Baseline of the same run: the briefing of the 6,000-lot demo range. Target
-(issue 6): under 5 MB for 100,000 lots.
+: under 5 MB for 100,000 lots.
 """
 
 from __future__ import annotations

@@ -4,7 +4,7 @@ The 50 shipped new lots are the baseline of the same run: the difference is what
 10,000 lots cost beyond starting up, loading the model, profiling it for the
 driver cuts and rebuilding HDBSCAN's prediction data.
 
-Target (issue 5): placing 10,000 new lots under 10 s as a whole cold process.
+Target: placing 10,000 new lots under 10 s as a whole cold process.
 """
 
 from __future__ import annotations

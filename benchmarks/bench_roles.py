@@ -25,44 +25,19 @@ import time
 import numpy as np
 import pandas as pd
 
-from vinstrata.config import Config, packaged_config
-from vinstrata.demo import generate_demo
-from vinstrata.profile import POOLED, profile_table
-from vinstrata.read.ingest import RawTable, Source
-from vinstrata.read.validate import validate
+from vinstrata.config import packaged_config
+from vinstrata.demo import generate_demo, planted_profiles
 
 
-def truth_profile(seed: int, n_lots: int, config: Config) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """The drivers table of a fresh demo range profiled under its planted styles, and the
-    planted truth of its drivers."""
-    demo = generate_demo(n_lots, seed=seed, bad_rows=0, n_new=0)
-    raw = RawTable(cells=demo.lots.astype(str), rows=list(range(2, len(demo.lots) + 2)),
-                   source=Source("demo", "demo", "", "text"))
-    table = validate(raw, config)
-    used = table.used
-    truth = demo.truth_lots.set_index("lot")["style"].reindex(
-        table.ids.loc[used, "lot_id"]).to_numpy()
-    lots = pd.DataFrame({"grade": table.ids.loc[used, "grade"].to_numpy(), "style": truth,
-                         "nearest_style": truth})
-    counts = pd.Series(truth).value_counts()
-    # trusted as the engine would judge it: enough lots (the demo config's minimum)
-    styles = pd.DataFrame({"style": sorted(set(truth))})
-    styles["trusted"] = styles["style"].map(counts) >= config.segment.min_style_lots
-    profiles = profile_table(table.values[used].reset_index(drop=True),
-                             table.flags[used].reset_index(drop=True), lots, styles,
-                             table.specs, config)
-    return profiles.drivers, demo.truth_drivers
-
-
-def role_rates(drivers: pd.DataFrame, truth: pd.DataFrame) -> dict[str, float]:
+def role_rates(rows: pd.DataFrame) -> dict[str, float]:
     """The three role rates of one profiled range against its planted truth.
 
     Parameters
     ----------
-    drivers : DataFrame
-        ``drivers.csv`` of the range profiled under its planted styles.
-    truth : DataFrame
-        ``truth_drivers.csv`` (``role``, ``sign``, ``rides_on``).
+    rows : DataFrame
+        :func:`vinstrata.demo.planted_profiles`: ``drivers.csv`` of the range profiled
+        under its planted styles, with the planted truth (``planted``, ``sign``,
+        ``rides_on``).
 
     Returns
     -------
@@ -70,9 +45,7 @@ def role_rates(drivers: pd.DataFrame, truth: pd.DataFrame) -> dict[str, float]:
         Counts: ``direct`` / ``direct_ok``, ``passenger_drivers`` / ``passenger_ok``,
         ``drivers`` / ``false``.
     """
-    rows = drivers[(drivers["style"] != POOLED) & drivers["trusted"].astype(bool)
-                   & drivers["cliffs_delta"].notna()]
-    rows = rows.merge(truth.rename(columns={"role": "planted"}), on=["style", "analyte"])
+    rows = rows[rows["trusted"].astype(bool) & rows["cliffs_delta"].notna()]
     found = rows["is_driver"].astype(bool)
     direct = rows[rows["planted"] == "direct"]
     direct_ok = (direct["is_driver"].astype(bool) & (np.sign(direct["cliffs_delta"])
@@ -99,15 +72,14 @@ def main() -> None:
     start = time.perf_counter()
     misses = []
     for seed in args.seeds:
-        drivers, truth = truth_profile(seed, args.lots, config)
-        rates = role_rates(drivers, truth)
+        merged = planted_profiles(generate_demo(args.lots, seed=seed, bad_rows=0, n_new=0),
+                                  config)
+        rates = role_rates(merged)
         for key, value in rates.items():
             total[key] = total.get(key, 0) + value
         print(f"seed {seed}: direct {rates['direct_ok']}/{rates['direct']}, passengers "
               f"{rates['passenger_ok']}/{rates['passenger_drivers']}, no-effect drivers "
               f"{rates['false']}/{rates['drivers']}")
-        merged = drivers.merge(truth.rename(columns={"role": "planted"}),
-                               on=["style", "analyte"])
         bad = merged[merged["is_driver"].astype(bool) & (
             ((merged["planted"] == "direct") & (merged["role"] != "direct"))
             | ((merged["planted"] == "indirect") & ((merged["role"] != "indirect")

@@ -3,7 +3,7 @@
 Baseline of the same run: a fresh process that only starts Python and imports
 the libraries the run needs (the floor no run can go below).
 
-Target (issue 6): a cold run within 25 s on a 2-core machine.
+Target: a cold run within 25 s on a 2-core machine.
 """
 
 from __future__ import annotations

@@ -10,8 +10,8 @@ import pytest
 import statsmodels.api as sm
 
 from vinstrata.config import packaged_config
-from vinstrata.demo import ANALYTES, generate_demo
-from vinstrata.profile import POOLED, profile_table
+from vinstrata.demo import ANALYTES, generate_demo, planted_profiles
+from vinstrata.profile import POOLED
 from vinstrata.profile.partial import (
     PARTIAL_COLUMNS,
     assign_roles,
@@ -20,8 +20,6 @@ from vinstrata.profile.partial import (
     partial_effects,
     partial_from_corr,
 )
-from vinstrata.read.ingest import RawTable, Source
-from vinstrata.read.validate import validate
 
 
 def _residual_partial(y: np.ndarray, x: np.ndarray, j: int) -> float:
@@ -114,29 +112,12 @@ def test_roles_name_the_driver_a_passenger_rides_on():
     assert roles["moves_with"].tolist() == ["", "alcohol", "", ""]
 
 
-def _truth_profile(seed: int, n_lots: int, bootstrap: int):
+def _truth_profile(seed: int, n_lots: int, bootstrap: int) -> pd.DataFrame:
     config = packaged_config("demo")
     config = dataclasses.replace(config, profile=dataclasses.replace(config.profile,
                                                                      bootstrap=bootstrap))
-    demo = generate_demo(n_lots, seed=seed, bad_rows=0, n_new=0)
-    raw = RawTable(cells=demo.lots.astype(str), rows=list(range(2, len(demo.lots) + 2)),
-                   source=Source("demo", "demo", "", "text"))
-    table = validate(raw, config)
-    used = table.used
-    truth = demo.truth_lots.set_index("lot")["style"].reindex(
-        table.ids.loc[used, "lot_id"]).to_numpy()
-    lots = pd.DataFrame({"grade": table.ids.loc[used, "grade"].to_numpy(), "style": truth,
-                         "nearest_style": truth})
-    counts = pd.Series(truth).value_counts()
-    styles = pd.DataFrame({"style": sorted(set(truth))})
-    styles["trusted"] = styles["style"].map(counts) >= config.segment.min_style_lots
-    profiles = profile_table(table.values[used].reset_index(drop=True),
-                             table.flags[used].reset_index(drop=True), lots, styles,
-                             table.specs, config)
-    rows = profiles.drivers[(profiles.drivers["style"] != POOLED)
-                            & profiles.drivers["cliffs_delta"].notna()]
-    return rows.merge(demo.truth_drivers.rename(columns={"role": "planted"}),
-                      on=["style", "analyte"])
+    rows = planted_profiles(generate_demo(n_lots, seed=seed, bad_rows=0, n_new=0), config)
+    return rows[rows["cliffs_delta"].notna()]
 
 
 def test_roles_meet_their_targets_on_fresh_correlated_ranges():

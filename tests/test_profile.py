@@ -10,10 +10,8 @@ import pytest
 
 from conftest import DEMO
 from vinstrata.config import packaged_config
-from vinstrata.demo import generate_demo
-from vinstrata.profile import DRIVER_COLUMNS, POOLED, THRESHOLD_COLUMNS, profile_table
-from vinstrata.read.ingest import RawTable, Source
-from vinstrata.read.validate import validate
+from vinstrata.demo import generate_demo, planted_profiles
+from vinstrata.profile import DRIVER_COLUMNS, POOLED, THRESHOLD_COLUMNS
 
 
 def _planted_to_found(model) -> dict[str, str]:
@@ -78,21 +76,8 @@ def test_no_effect_analytes_stay_within_the_false_discovery_rate():
                                                                      bootstrap=300))
     shares = []
     for seed in range(1, 11):
-        demo = generate_demo(3000, seed=seed, bad_rows=0, n_new=0)
-        raw = RawTable(cells=demo.lots.astype(str), rows=list(range(2, len(demo.lots) + 2)),
-                       source=Source("demo", "demo", "", "text"))
-        table = validate(raw, config)
-        used = table.used
-        truth = demo.truth_lots.set_index("lot")["style"].reindex(
-            table.ids.loc[used, "lot_id"]).to_numpy()
-        lots = pd.DataFrame({"grade": table.ids.loc[used, "grade"].to_numpy(), "style": truth,
-                             "nearest_style": truth})
-        styles = pd.DataFrame({"style": sorted(set(truth)), "trusted": True})
-        profiles = profile_table(table.values[used].reset_index(drop=True),
-                                 table.flags[used].reset_index(drop=True), lots, styles,
-                                 table.specs, config)
-        rows = profiles.drivers[profiles.drivers["style"] != POOLED].merge(
-            demo.truth_drivers.rename(columns={"role": "planted"}), on=["style", "analyte"])
+        rows = planted_profiles(generate_demo(3000, seed=seed, bad_rows=0, n_new=0), config,
+                                trust_all=True)
         # passengers are true marginal associations (what the BH tests are about), so they
         # count among the discoveries; no-effect analytes are the false ones
         flagged = rows[rows["is_driver"]]

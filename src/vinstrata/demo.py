@@ -40,6 +40,8 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from vinstrata.config import Config
+
 PRODUCER = "Quillory Vale Wine Co."
 ANALYTES = (
     "alcohol", "residual_sugar", "titratable_acidity", "volatile_acidity", "ph", "free_so2",
@@ -443,6 +445,52 @@ def _planted_anomalies(rng: np.random.Generator, recipes: list[StyleRecipe],
     chem.loc[0, "free_so2"] = 4.0
     out.append((rose, "free SO2 4 mg/L: low molecular SO2", chem))
     return out
+
+
+def planted_profiles(demo: DemoRange, config: Config, trust_all: bool = False) -> pd.DataFrame:
+    """The drivers table of a demo range profiled under its planted styles, with the truth.
+
+    The segmentation is left out, so that planted-truth checks of the profiles
+    measure the profiles alone: every used lot keeps the style it was drawn from.
+
+    Parameters
+    ----------
+    demo : DemoRange
+    config : Config
+        The run's config (``configs/demo.toml`` fits the demo range).
+    trust_all : bool
+        Trust every planted style; otherwise a style is trusted when it holds at least
+        ``segment.min_style_lots`` lots, as the engine would judge its size.
+
+    Returns
+    -------
+    DataFrame
+        The within-style rows of ``drivers.csv`` merged with ``truth_drivers.csv``
+        (its ``role`` renamed ``planted``).
+    """
+    from vinstrata.profile.drivers import profile_table
+    from vinstrata.profile.groups import POOLED
+    from vinstrata.read.ingest import RawTable, Source
+    from vinstrata.read.validate import validate
+
+    raw = RawTable(cells=demo.lots.astype(str), rows=list(range(2, len(demo.lots) + 2)),
+                   source=Source("demo", "demo", "", "text"))
+    table = validate(raw, config)
+    used = table.used
+    truth = demo.truth_lots.set_index("lot")["style"].reindex(
+        table.ids.loc[used, "lot_id"]).to_numpy()
+    lots = pd.DataFrame({"grade": table.ids.loc[used, "grade"].to_numpy(), "style": truth,
+                         "nearest_style": truth})
+    styles = pd.DataFrame({"style": sorted(set(truth))})
+    counts = pd.Series(truth).value_counts()
+    styles["trusted"] = True if trust_all else (
+        styles["style"].map(counts) >= config.segment.min_style_lots)
+    profiles = profile_table(table.values[used].reset_index(drop=True),
+                             table.flags[used].reset_index(drop=True), lots, styles,
+                             table.specs, config)
+    rows = profiles.drivers[profiles.drivers["style"] != POOLED]
+    return rows.merge(demo.truth_drivers.rename(columns={"role": "planted"}),
+                      on=["style", "analyte"])
 
 
 def write_demo(out_dir: str | Path, demo: DemoRange) -> dict[str, Path]:
