@@ -5,7 +5,7 @@ analyte, B resamples of each band drawn one by one, Cliff's delta of each
 resample from scipy's Mann-Whitney U. vinstrata draws the resamples once per
 style as multiplicities and gets every analyte's B deltas from cumulative sums.
 
-Target (issue 4): profiling the demo range with B = 2000 under 5 s on 2 cores.
+Target: profiling the demo range with B = 2000 under 5 s on 2 cores.
 """
 
 from __future__ import annotations

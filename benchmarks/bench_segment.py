@@ -7,7 +7,7 @@ on the result with the cluster size vinstrata chose, and a 2-D UMAP for the map.
 Both run as fresh processes, first with empty numba caches (the first run after
 installing), then again with the caches the first run left.
 
-Target (issue 3): cold segment within 10 s on 2 cores and at least 3x faster than
+Target: cold segment within 10 s on 2 cores and at least 3x faster than
 the straightforward pipeline, with the same styles.
 """
 
