@@ -13,6 +13,7 @@ from __future__ import annotations
 import sys
 import traceback
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import click
 
@@ -21,6 +22,9 @@ from vinstrata.config import Config, load_config, packaged_config, with_override
 from vinstrata.errors import InputError
 from vinstrata.folders import Identity, OutputFolder, held_back
 from vinstrata.progress import Reporter
+
+if TYPE_CHECKING:
+    from vinstrata.segment.model import StyleModel
 
 CONFIG_HELP = "TOML config (configs/default.toml documents every key)."
 
@@ -94,6 +98,16 @@ def _config(path: str | Path | None, seed: int | None = None,
     if seed is not None:
         config = with_overrides(config, seed=seed)
     return config
+
+
+def _model_and_config(model_dir: Path, config_path: Path | None) -> tuple[StyleModel, Config]:
+    """A model folder loaded, and the config a later stage runs with (the model's own,
+    or the one given, checked against the model)."""
+    from vinstrata import pipeline
+    from vinstrata.segment.model import load_model
+
+    model = load_model(model_dir)
+    return model, pipeline.model_config(model, load_config(config_path) if config_path else None)
 
 
 def _say(text: str) -> None:
@@ -257,14 +271,12 @@ def profile(state: State, model_dir: Path, config_path: Path | None, out_dir: Pa
     """Profile each style against its grade bands; writes drivers, thresholds, contrasts."""
     from vinstrata import pipeline
     from vinstrata.profile.drivers import driver_summary
-    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     with OutputFolder(out_dir, "profile") as folder:
-        model = load_model(model_dir)
+        model, config = _model_and_config(model_dir, config_path)
         identity = pipeline.run_identity(model)
         folder.claim(identity)
-        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
         with rep.stage("profile: effect sizes, bootstrap, thresholds"):
             profiles = pipeline.profile(model, config, rep)
         with held_back():
@@ -297,14 +309,12 @@ def place(state: State, new: Path, model_dir: Path, config_path: Path | None, ou
     """Place new lots against their styles; writes placements.csv and details."""
     from vinstrata import pipeline
     from vinstrata.place.text import describe
-    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     with OutputFolder(out_dir, "place") as folder:
-        model = load_model(model_dir)
+        model, config = _model_and_config(model_dir, config_path)
         identity = pipeline.run_identity(model)
         folder.claim(identity)
-        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
         with rep.stage("check: read and validate the new lots"):
             table = pipeline.load_new(new, model, config, sheet=sheet)
         pipeline.warn_rejections(table, rep, where="placements.csv")
@@ -344,13 +354,11 @@ def brief(state: State, model_dir: Path, profiles_dir: Path | None, placements_d
           config_path: Path | None, out_pdf: Path, previous_dir: Path | None) -> None:
     """Write the buyer briefing PDF."""
     from vinstrata import pipeline
-    from vinstrata.segment.model import load_model
 
     rep = state.reporter()
     # the PDF is one file among others: brief records it and never removes anything
     with OutputFolder(Path(out_pdf).parent, "brief") as folder:
-        model = load_model(model_dir)
-        config = pipeline.model_config(model, load_config(config_path) if config_path else None)
+        model, config = _model_and_config(model_dir, config_path)
         if profiles_dir:
             profiles = pipeline.read_profile(profiles_dir)
         else:
