@@ -735,8 +735,11 @@ def methods_text(prof: ProfileSettings, min_style_lots: int,
         "delta is the probability that a top lot has the higher value minus the probability "
         "that it has the lower (from -1 to +1; Romano et al. 2006 call |delta| below 0.147 "
         "negligible, below 0.33 small, below 0.474 medium, above large). Its "
-        f"{level} interval comes from a seeded bootstrap of {prof.bootstrap} resamples. "
-        "Hedges' g is the standardised mean difference.",
+        f"{level} interval is the bias-corrected and accelerated (BCa) interval of a seeded "
+        f"bootstrap of {prof.bootstrap} resamples. Hedges' g is the standardised mean "
+        "difference. A driver's conditional effect is its rank partial correlation with the "
+        "grade once the style's other analytes are known: 'direct' where its interval excludes "
+        "0, a passenger ('moves with ...') where it vanishes beside another driver.",
         "A driver is an analyte whose top and bottom lots differ beyond chance: its "
         "Brunner-Munzel p-value (a test of P(top > bottom) = 1/2, what delta measures), "
         "corrected by the Benjamini-Hochberg false discovery rate over "
@@ -744,7 +747,8 @@ def methods_text(prof: ProfileSettings, min_style_lots: int,
         f"is below {prof.fdr:g} and its delta interval excludes 0. A driver describes an "
         "association in these lots; it is not proof that changing the analyte changes the grade.",
         "Thresholds: the Youden cut is the value that best separates top from bottom lots "
-        f"(maximum sensitivity + specificity - 1); the target window is the central {window} of "
+        "(maximum sensitivity + specificity - 1), its interval from a smoothed bootstrap of "
+        f"the same resamples; the target window is the central {window} of "
         "the top band's values. Neither is a specification: lots on the wrong side of a cut can "
         "grade well and the reverse.",
         f"Sample sizes: a band with fewer than {prof.min_band_lots} lots gets no effect size "
