@@ -69,8 +69,11 @@ def test_paths_are_checked_by_click(small, tmp_path, run_cli):
     missing = run_cli("segment", tmp_path / "none.csv", "--out", tmp_path / "o")
     assert missing.code == 2
     assert "Invalid value for 'LOTS'" in missing.err and "does not exist" in missing.err
-    folder = run_cli("place", tmp_path, "--model", tmp_path, "--out", tmp_path / "o")
-    assert folder.code == 2 and "is a directory" in folder.err
+    # a folder is a dataset of lot files: one holding none is refused in one line
+    (tmp_path / "empty").mkdir()
+    folder = run_cli("check", tmp_path / "empty", "--out", tmp_path / "o")
+    assert folder.code == 2 and folder.err.startswith("error: ") and \
+        "is a folder without lot files" in folder.err
     # an unknown option stays click's usage error
     unknown = run_cli("segment", small["lots"], "--out", tmp_path / "o", "--nope")
     assert unknown.code == 2 and "No such option '--nope'" in unknown.err

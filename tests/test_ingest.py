@@ -228,6 +228,47 @@ def test_parquet_file(tmp_path):
     assert table.source.format == "parquet"
 
 
+def test_parquet_demo_lots_give_the_table_of_the_same_csv(tmp_path, demo_config):
+    # the demo range as Parquet, numeric columns as float64: numbers are read as numbers
+    # (no text in between), and the lot table is the one of the CSV, cell for cell
+    import pyarrow as pa
+    import pyarrow.csv as pcsv
+    import pyarrow.parquet as pq
+
+    table = pcsv.read_csv(DEMO / "lots.csv")
+    table = pa.table([c.cast(pa.float64()) if pa.types.is_integer(c.type) else c
+                      for c in table.columns], names=table.column_names)
+    assert pa.types.is_float64(table.schema.field("alcohol").type)
+    assert pa.types.is_string(table.schema.field("malic_acid").type)  # holds "<0.1"
+    pq.write_table(table, tmp_path / "lots.parquet")
+    raw = read_table(tmp_path / "lots.parquet")
+    assert raw.cells["alcohol"].dtype == np.float64 and raw.cells["lot"].dtype != np.float64
+    with pytest.warns(UserWarning):
+        from_csv = load_lots(str(DEMO / "lots.csv"), demo_config)
+        from_parquet = load_lots(str(tmp_path / "lots.parquet"), demo_config)
+    for part in ("ids", "values", "flags", "extra"):
+        pd.testing.assert_frame_equal(getattr(from_parquet, part), getattr(from_csv, part),
+                                      check_exact=True, obj=part)
+    assert from_parquet.specs == from_csv.specs and from_parquet.decimal == from_csv.decimal
+    assert from_parquet.blank_rows == from_csv.blank_rows
+    rejected = from_parquet.ids[from_parquet.ids["status"] != "used"]
+    assert rejected["status"].str.startswith("non_numeric:").any()
+    assert rejected["detail"].str.match(r"row \d+(, column '[^']+')?: ").all()
+
+
+def test_parquet_typed_numbers_vote_for_the_decimal_mark_as_their_text():
+    # a stored number has no decimal mark, yet it counts as its text would (cells.typed_dots)
+    from vinstrata.read.cells import decimal_counts
+    from vinstrata.read.ingest import number_texts
+
+    rng = np.random.default_rng(3)
+    values = np.concatenate([rng.normal(0, 1, 500) * 10.0 ** rng.integers(-7, 18, 500),
+                             [0.0, -0.0, 1e15, 1e16, 1e-4, 9.9e-5, 12.0, np.nan, np.inf]])
+    typed = pd.Series(values, dtype=float)
+    text = pd.Series(number_texts(values), dtype=str)
+    assert decimal_counts([typed]) == decimal_counts([text])
+
+
 def test_parquet_nulls_are_missing_cells(tmp_path):
     data = frame()
     data.loc[1, "ph"] = np.nan
@@ -693,17 +734,20 @@ def test_junk_file_gives_one_error_line_and_exit_code_2(tmp_path, run_cli, name,
 
 
 def test_missing_file_and_folder_are_refused(tmp_path, run_cli):
-    # the command line's paths are click's: it refuses them with its own usage error
-    for target, why in ((tmp_path / "nowhere.csv", "does not exist"),
-                        (tmp_path, "is a directory")):
-        result = run_cli("check", target, "--config", _toml(tmp_path), "--out", tmp_path / "o")
-        assert result.code == 2, result
-        assert f"Invalid value for 'LOTS': File '{target}' {why}" in result.err
-        assert "Traceback" not in result.err
+    # a missing path is click's: it refuses it with its own usage error
+    target = tmp_path / "nowhere.csv"
+    result = run_cli("check", target, "--config", _toml(tmp_path), "--out", tmp_path / "o")
+    assert result.code == 2, result
+    assert f"Invalid value for 'LOTS': Path '{target}' does not exist" in result.err
+    assert "Traceback" not in result.err
+    # a folder is a dataset; one without lot files is refused in one line
+    result = run_cli("check", tmp_path, "--config", _toml(tmp_path), "--out", tmp_path / "o")
+    assert result.code == 2, result
+    assert result.err.strip() == f"error: {tmp_path}: is a folder without lot files (.csv, " \
+        ".tsv, .txt, .xlsx, .xlsm, .parquet, .pq)"
     for target in (tmp_path / "nowhere.csv", tmp_path):  # the library's own one-line refusal
         with pytest.raises(InputError, match=re.escape(str(target))):
             read_table(target)
-
 
 
 def test_a_refused_file_leaves_one_line_even_with_progress_on(tmp_path, run_cli):

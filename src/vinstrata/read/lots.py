@@ -6,13 +6,18 @@ builds them, every later stage reads them.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 import pandas as pd
 
 from vinstrata.read.cells import MISSING
 from vinstrata.read.ingest import Source
+
+if TYPE_CHECKING:
+    from vinstrata.config import Config
 
 USED = "used"  # the status of a row that goes on
 UNASSIGNED = "unassigned"  # the style of a lot that fits no style
@@ -133,3 +138,59 @@ def observed(values: pd.DataFrame, flags: pd.DataFrame, analyte: str) -> np.ndar
     out = values[analyte].to_numpy(dtype=float).copy()
     out[(flags[analyte] == MISSING).to_numpy()] = np.nan
     return out
+
+
+def load_lot_batches(path: str, config: Config, batch_rows: int,
+                     require_grade: bool = False) -> Iterator[LotTable]:
+    """Read and validate a lot file (or dataset) in batches of at most ``batch_rows`` rows.
+
+    The batches, one after the other, hold what
+    ``load_lots(path, config, require_grade=require_grade)`` holds: the same rows
+    in the same order with the same row numbers, values, cell states, statuses
+    and details. To that end the table-wide choices are made over the whole
+    file before the first batch is handed out (:func:`vinstrata.read.validate.settle`:
+    one extra reading pass, and a second one only when a column holds censored
+    tokens such as ``ND``): the decimal mark, and what such a token stands for.
+    Analytes that the config does not name are found in the first batch.
+
+    Duplicate lot ids are found within a batch only: a lot id on rows of two
+    batches is ``used`` in both. Finding those is the consumer's job (the
+    ``lot_id`` column of each batch's ``ids``), as is reporting rejected rows
+    (no warning is given here).
+
+    Parameters
+    ----------
+    path : str
+        A lot file (csv, tsv, xlsx, parquet), a folder of them (hive-partitioned
+        or not) or a glob pattern (see :mod:`vinstrata.read.ingest`).
+    config : Config
+        The run configuration (``[columns]``, ``[ingest]``, units, bounds).
+    batch_rows : int
+        At most this many rows per batch; memory stays bounded by it (a workbook
+        is read whole first).
+    require_grade : bool
+        Reject rows without a grade (``missing_grade``).
+
+    Yields
+    ------
+    LotTable
+        One batch of rows, each with its status; every batch carries the same
+        ``source`` (its SHA-256 covers the whole file or dataset).
+
+    Raises
+    ------
+    InputError
+        As :func:`vinstrata.read.validate.load_lots`, when the batch holding the
+        fault is reached (a fault in the file before the first batch is handed out).
+    """
+    from vinstrata.read.ingest import ReadLimits, read_batches
+    from vinstrata.read.validate import settle, validate_batches
+
+    limits = ReadLimits.from_config(config.ingest)
+
+    def batches() -> Iterator:
+        return read_batches(path, batch_rows, sheet=config.ingest.sheet,
+                            delimiter=config.ingest.delimiter, limits=limits)
+
+    settled = settle(batches, config, require_grade)
+    yield from validate_batches(batches(), settled, config, require_grade)

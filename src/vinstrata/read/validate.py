@@ -30,7 +30,7 @@ Missing cells in used rows are imputed later, inside the fitted transform
 from __future__ import annotations
 
 import math
-from collections.abc import Callable
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -50,7 +50,14 @@ from vinstrata.read.analytes import (
 )
 from vinstrata.read.derive import add_derived
 from vinstrata.read.hints import rejection_hints
-from vinstrata.read.ingest import RawTable, ReadLimits, raw_from_frame, read_table
+from vinstrata.read.ingest import (
+    RawTable,
+    ReadLimits,
+    _cell_text,
+    number_texts,
+    raw_from_frame,
+    read_table,
+)
 from vinstrata.read.lots import USED, AnalyteSpec, LotTable
 from vinstrata.read.quality import rejection_note
 from vinstrata.read.units import factor_to_canonical
@@ -181,26 +188,55 @@ def _fmt(value: float) -> str:
 class _Statuses:
     """Collects the first rejection reason of each row."""
 
-    def __init__(self, n: int, rows: list[int]) -> None:
-        self.status = np.full(n, USED, dtype=object)
-        self.detail = np.full(n, "", dtype=object)
+    def __init__(self, n: int, rows: list[int], where: Callable[[int], str] | None = None
+                 ) -> None:
+        self.open = np.ones(n, dtype=bool)  # not rejected yet
+        self.reasons: dict[int, str] = {}
+        self.details: dict[int, str] = {}
         self.rows = rows
+        self.where = where or (lambda row: f"row {row}")
+
+    def at(self, i: int) -> str:
+        """Row ``i`` as a detail names it: "row 17" (with its file in a dataset)."""
+        return self.where(self.rows[i])
 
     def reject(self, mask: np.ndarray, reason: str, detail: Callable[[int], str]) -> None:
         """Give ``reason`` to the rows in ``mask`` not rejected yet; ``detail(i)`` words it."""
-        fresh = np.asarray(mask, dtype=bool) & (self.status == USED)
-        for i in np.flatnonzero(fresh):
-            self.status[i] = reason
-            self.detail[i] = detail(int(i))
+        fresh = np.flatnonzero(np.asarray(mask, dtype=bool) & self.open)
+        self.open[fresh] = False
+        for i in fresh.tolist():
+            self.reasons[i] = reason
+            self.details[i] = detail(i)
+
+    def columns(self) -> tuple[pd.Series, pd.Series]:
+        """The status and detail columns, as text (most rows share the one status)."""
+        n = len(self.open)
+        names = [USED, *dict.fromkeys(self.reasons.values())]
+        code = {name: k for k, name in enumerate(names)}
+        status = np.zeros(n, dtype=np.int32)
+        detail = np.zeros(n, dtype=np.int32)
+        rejected = np.fromiter(self.reasons, dtype=np.int64, count=len(self.reasons))
+        status[rejected] = [code[r] for r in self.reasons.values()]
+        detail[rejected] = np.arange(1, rejected.size + 1)
+        return (_text_codes(status, names),
+                _text_codes(detail, ["", *self.details.values()]))
+
+
+def _text_codes(codes: np.ndarray, names: list[str]) -> pd.Series:
+    import pyarrow as pa
+
+    arr = pa.DictionaryArray.from_arrays(pa.array(codes, type=pa.int32()),
+                                         pa.array(names, type=pa.string()))
+    return pd.Series(pd.array(arr.cast(pa.string()), dtype=str))
 
 
 def _check_ids(stat: _Statuses, lot_ids: pd.Series, lot_col: str, policy: str) -> None:
-    rows = stat.rows
-    stat.reject((lot_ids == "").to_numpy(), "missing_lot_id",
-                lambda i: f"row {rows[i]}: no lot id in column '{lot_col}'")
+    rows, at = stat.rows, stat.at
+    stat.reject((lot_ids == "").to_numpy(dtype=bool), "missing_lot_id",
+                lambda i: f"{at(i)}: no lot id in column '{lot_col}'")
     present = lot_ids != ""
     keep = False if policy == "reject_all" else "first"
-    dup = (lot_ids.duplicated(keep=keep) & present).to_numpy()
+    dup = (lot_ids.duplicated(keep=keep) & present).to_numpy(dtype=bool)
     if not dup.any():
         return
     first_row: dict[str, int] = {}
@@ -210,30 +246,31 @@ def _check_ids(stat: _Statuses, lot_ids: pd.Series, lot_col: str, policy: str) -
     def detail(i: int) -> str:
         lot, first = lot_ids.iloc[i], first_row[lot_ids.iloc[i]]
         if first != rows[i]:
-            return f"row {rows[i]}: lot id '{lot}' also on row {first}"
-        return f"row {rows[i]}: lot id '{lot}' appears more than once"
+            return f"{at(i)}: lot id '{lot}' also on row {first}"
+        return f"{at(i)}: lot id '{lot}' appears more than once"
 
     stat.reject(dup, "duplicate_lot_id", detail)
 
 
-def _check_numeric(stat: _Statuses, states: np.ndarray, text: np.ndarray, name: str,
+def _check_numeric(stat: _Statuses, codes: np.ndarray, cells: pd.Series, name: str,
                    column: str) -> None:
-    rows = stat.rows
-    stat.reject(states == cellmod.NON_NUMERIC, f"non_numeric:{name}",
-                lambda i: f"row {rows[i]}, column '{column}': '{_short(text[i])}' is not a number")
+    at = stat.at
+    stat.reject(codes == cellmod.C_NON_NUMERIC, f"non_numeric:{name}",
+                lambda i: f"{at(i)}, column '{column}': '{_short(_cell_text(cells.iloc[i]))}' "
+                "is not a number")
 
 
 def _check_range(stat: _Statuses, v: np.ndarray, spec: AnalyteSpec) -> None:
-    rows, unit = stat.rows, spec.unit
+    at, unit = stat.at, spec.unit
     finite = np.isfinite(v)
     if spec.concentration:
         stat.reject(finite & (v < 0), f"negative:{spec.name}",
-                    lambda i: f"row {rows[i]}, column '{spec.column}': {_fmt(v[i])} {unit} "
+                    lambda i: f"{at(i)}, column '{spec.column}': {_fmt(v[i])} {unit} "
                     "is negative")
     if spec.bounds is not None:
         lo, hi = spec.bounds
         stat.reject(finite & ((v < lo) | (v > hi)), f"out_of_range:{spec.name}",
-                    lambda i: f"row {rows[i]}, column '{spec.column}': {_fmt(v[i])} {unit} is "
+                    lambda i: f"{at(i)}, column '{spec.column}': {_fmt(v[i])} {unit} is "
                     f"outside the possible {_fmt(lo)}-{_fmt(hi)} {unit}")
 
 
@@ -241,22 +278,22 @@ def _check_so2(stat: _Statuses, values: dict[str, np.ndarray], specs: list[Analy
     by_kind = {s.kind: s.name for s in specs if s.kind}
     if "free_so2" not in by_kind or "total_so2" not in by_kind:
         return
-    rows = stat.rows
+    at = stat.at
     free, total = values[by_kind["free_so2"]], values[by_kind["total_so2"]]
     over = np.isfinite(free) & np.isfinite(total) & (free > total + 1e-9)
     stat.reject(over, "free_so2_above_total",
-                lambda i: f"row {rows[i]}: free SO2 {_fmt(free[i])} mg/L is above total SO2 "
+                lambda i: f"{at(i)}: free SO2 {_fmt(free[i])} mg/L is above total SO2 "
                 f"{_fmt(total[i])} mg/L")
 
 
 def _check_missing(stat: _Statuses, flags: dict[str, np.ndarray], n_analytes: int,
                    share: float) -> None:
-    rows = stat.rows
-    n_missing = sum((f == cellmod.MISSING).astype(int) for f in flags.values())
+    at = stat.at
+    n_missing = sum((f == cellmod.C_MISSING).astype(int) for f in flags.values())
     allowed = math.floor(share * n_analytes + 1e-9)
     too_many = (n_missing > allowed) | (n_missing == n_analytes)
     stat.reject(too_many, "too_many_missing",
-                lambda i: f"row {rows[i]}: {n_missing[i]} of {n_analytes} analytes missing "
+                lambda i: f"{at(i)}: {n_missing[i]} of {n_analytes} analytes missing "
                 f"(at most {allowed} allowed)")
 
 
@@ -266,7 +303,7 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     Parameters
     ----------
     raw : RawTable
-        Text cells from :func:`vinstrata.read.ingest.read_table`.
+        Text cells from :func:`vinstrata.read.ingest.read_table` (typed numbers too).
     config : Config
     require_grade : bool
         Rows without a grade are rejected (``missing_grade``) when True and the
@@ -281,8 +318,106 @@ def validate(raw: RawTable, config: Config, require_grade: bool = True) -> LotTa
     InputError
         A configured column is missing, a unit is unknown for its analyte.
     """
-    columns = _match_columns(raw, config, require_grade)
-    cells = _parse_cells(raw, columns, config.ingest.decimal, config.ingest.censored)
+    return _validate(raw, config, require_grade, None)
+
+
+@dataclass(frozen=True)
+class Settled:
+    """What :func:`validate` otherwise takes from the whole table, settled for its batches.
+
+    Attributes
+    ----------
+    analytes : tuple of str
+        The analyte names (the config's, or those found in the first batch).
+    decimal : str
+        The decimal mark, detected over the whole table when ``ingest.decimal`` is "auto".
+    bases : dict
+        Header -> what a censored token without a number (``ND``) stands for,
+        from the whole column (:func:`vinstrata.read.cells.token_base`).
+    """
+
+    analytes: tuple[str, ...]
+    decimal: str
+    bases: dict[str, float]
+
+
+def settle(batches: Callable[[], Iterable[RawTable]], config: Config,
+           require_grade: bool = False) -> Settled:
+    """The table-wide choices of :func:`validate`, taken over every batch of a table.
+
+    The analytes the config does not name are found in the first batch; the
+    decimal mark and the value of censored tokens come from every batch, so that
+    validating batch after batch gives the values of the table validated whole.
+
+    Parameters
+    ----------
+    batches : callable
+        Returns a fresh iterable of the table's batches (called once, or twice
+        when a column holds censored tokens without a number).
+    config : Config
+    require_grade : bool
+        As for :func:`validate`.
+
+    Returns
+    -------
+    Settled
+    """
+    decimal = config.ingest.decimal
+    commas = dots = 0
+    analytes: tuple[str, ...] | None = None
+    headers: list[str] = []
+    numeric: list[str] = []
+    tokened: dict[str, None] = {}
+    for raw in batches():
+        if analytes is None:
+            columns = _match_columns(raw, config, require_grade)
+            analytes = tuple(s.name for s in columns.specs)
+            headers = [s.column for s in columns.specs]
+            numeric = headers + ([columns.grade] if columns.grade else [])
+        if decimal == "auto":
+            found = cellmod.decimal_counts([raw.cells[h] for h in numeric])
+            commas, dots = commas + found[0], dots + found[1]
+        tokened.update((h, None) for h in headers
+                       if h not in tokened and cellmod.has_tokens(raw.cells[h]))
+    if decimal == "auto":
+        decimal = "," if commas > dots else "."
+    stats = {h: (np.inf, np.inf) for h in tokened}
+    if stats:  # a second pass: the lowest limit and smallest value of the whole column
+        for raw in batches():
+            for header, (limit, measured) in stats.items():
+                _, low, small = cellmod.censor_stats(raw.cells[header], decimal)
+                stats[header] = (min(limit, low), min(measured, small))
+    bases = {h: cellmod.token_base(limit, measured) for h, (limit, measured) in stats.items()}
+    return Settled(analytes=analytes or (), decimal=decimal, bases=bases)
+
+
+def validate_batches(batches: Iterable[RawTable], settled: Settled, config: Config,
+                     require_grade: bool = False) -> Iterator[LotTable]:
+    """Validate batch after batch with the table-wide choices of :func:`settle`.
+
+    Parameters
+    ----------
+    batches : iterable of RawTable
+    settled : Settled
+    config : Config
+    require_grade : bool
+
+    Yields
+    ------
+    LotTable
+        One per batch; duplicate lot ids are found within a batch only.
+    """
+    for raw in batches:
+        yield _validate(raw, config, require_grade, settled)
+
+
+def _validate(raw: RawTable, config: Config, require_grade: bool, settled: Settled | None
+              ) -> LotTable:
+    columns = _match_columns(raw, config, require_grade,
+                             settled.analytes if settled is not None else None)
+    decimal = settled.decimal if settled is not None else config.ingest.decimal
+    cells = _parse_cells(raw, columns, decimal, config.ingest.censored,
+                         settled.bases if settled is not None else None)
     statuses = _check_rows(raw, columns, cells, config.ingest.duplicate_ids,
                            config.ingest.max_missing_share, require_grade)
     return add_derived(_build_table(raw, columns, cells, statuses), config.derived)
@@ -299,7 +434,8 @@ class _Columns:
     specs: list[AnalyteSpec]
 
 
-def _match_columns(raw: RawTable, config: Config, require_grade: bool) -> _Columns:
+def _match_columns(raw: RawTable, config: Config, require_grade: bool,
+                   analytes: tuple[str, ...] | None = None) -> _Columns:
     """Find the configured columns among the headers, and the analytes' specs."""
     name = raw.source.name
     headers = list(raw.cells.columns)
@@ -315,7 +451,12 @@ def _match_columns(raw: RawTable, config: Config, require_grade: bool) -> _Colum
                 raise
     passthrough = {p: _find_column(p, index, headers, name) for p in cols.passthrough}
     taken = {lot_col, grade_col, *passthrough.values()} - {""}
-    analyte_names = list(cols.analytes) or numeric_columns(raw, taken, config.ingest.decimal)
+    for key in raw.partition_keys:  # a dataset's partition folders pass through as columns
+        if key not in taken and key not in passthrough:
+            passthrough[key] = key
+            taken.add(key)
+    analyte_names = list(analytes or cols.analytes) or numeric_columns(raw, taken,
+                                                                       config.ingest.decimal)
     if not analyte_names:
         raise InputError(f"{name}: no analyte columns (name them in [columns] analytes)")
     _check_table_keys(config, analyte_names)
@@ -333,13 +474,21 @@ class _Cells:
 
     lot_ids: pd.Series
     values: dict[str, np.ndarray]
-    flags: dict[str, np.ndarray]
+    flags: dict[str, np.ndarray]  # state codes (cells.STATES)
     grade: np.ndarray
-    grade_states: np.ndarray | None  # None without a grade column
+    grade_states: np.ndarray | None  # state codes; None without a grade column
     decimal: str
 
 
-def _parse_cells(raw: RawTable, columns: _Columns, decimal: str, censored: str) -> _Cells:
+def _texts(cells: pd.Series) -> pd.Series:
+    """A column as text: typed numbers as their cells read (:func:`number_texts`)."""
+    if cellmod.is_typed(cells):
+        return pd.Series(number_texts(cells.to_numpy()), dtype=str)
+    return cells.astype(str)
+
+
+def _parse_cells(raw: RawTable, columns: _Columns, decimal: str, censored: str,
+                 bases: dict[str, float] | None = None) -> _Cells:
     """Numbers from the text cells, in canonical units, with the decimal mark detected."""
     if decimal == "auto":
         numeric = [raw.cells[s.column] for s in columns.specs]
@@ -347,20 +496,21 @@ def _parse_cells(raw: RawTable, columns: _Columns, decimal: str, censored: str) 
             numeric.append(raw.cells[columns.grade])
         decimal = cellmod.detect_decimal(numeric)
     if columns.lot:
-        lot_ids = raw.cells[columns.lot].astype(str).str.strip()
+        lot_ids = _texts(raw.cells[columns.lot]).str.strip()
     else:  # a table without lot ids: each lot is known by its file row
         lot_ids = pd.Series([f"row{r}" for r in raw.rows], dtype=object)
     values, flags = {}, {}
     for spec in columns.specs:
-        parsed, states = cellmod.parse_cells(raw.cells[spec.column], decimal, censored)
+        base = (bases or {}).get(spec.column)
+        parsed, states = cellmod.parse_codes(raw.cells[spec.column], decimal, censored, base)
         values[spec.name] = parsed * spec.factor
         flags[spec.name] = states
     grade, grade_states = np.full(len(raw.cells), np.nan), None
     if columns.grade:
-        grade, grade_states = cellmod.parse_cells(raw.cells[columns.grade], decimal)
-        bad = (grade_states != cellmod.OK) & (grade_states != cellmod.MISSING)
+        grade, grade_states = cellmod.parse_codes(raw.cells[columns.grade], decimal)
+        bad = (grade_states != cellmod.C_OK) & (grade_states != cellmod.C_MISSING)
         grade[bad] = np.nan
-        grade_states = np.where(bad, cellmod.NON_NUMERIC, grade_states)
+        grade_states = np.where(bad, cellmod.C_NON_NUMERIC, grade_states)
     return _Cells(lot_ids=lot_ids, values=values, flags=flags, grade=grade,
                   grade_states=grade_states, decimal=decimal)
 
@@ -368,18 +518,18 @@ def _parse_cells(raw: RawTable, columns: _Columns, decimal: str, censored: str) 
 def _check_rows(raw: RawTable, columns: _Columns, cells: _Cells, duplicate_ids: str,
                 max_missing_share: float, require_grade: bool) -> _Statuses:
     """Every row's status: the first rejection reason that applies, in the documented order."""
-    stat = _Statuses(len(raw.cells), raw.rows)
+    stat = _Statuses(len(raw.cells), raw.rows, raw.where)
     _check_ids(stat, cells.lot_ids, columns.lot, duplicate_ids)
     for spec in columns.specs:
-        _check_numeric(stat, cells.flags[spec.name], raw.cells[spec.column].to_numpy(),
-                       spec.name, spec.column)
+        _check_numeric(stat, cells.flags[spec.name], raw.cells[spec.column], spec.name,
+                       spec.column)
     if cells.grade_states is not None:
-        grade_col, rows = columns.grade, raw.rows
-        _check_numeric(stat, cells.grade_states, raw.cells[grade_col].to_numpy(),
-                       columns.grade_name, grade_col)
+        grade_col, at = columns.grade, stat.at
+        _check_numeric(stat, cells.grade_states, raw.cells[grade_col], columns.grade_name,
+                       grade_col)
         if require_grade:
-            stat.reject(cells.grade_states == cellmod.MISSING, "missing_grade",
-                        lambda i: f"row {rows[i]}: no grade in column '{grade_col}'")
+            stat.reject(cells.grade_states == cellmod.C_MISSING, "missing_grade",
+                        lambda i: f"{at(i)}: no grade in column '{grade_col}'")
     for spec in columns.specs:
         _check_range(stat, cells.values[spec.name], spec)
     _check_so2(stat, cells.values, columns.specs)
@@ -390,18 +540,27 @@ def _check_rows(raw: RawTable, columns: _Columns, cells: _Cells, duplicate_ids: 
 def _build_table(raw: RawTable, columns: _Columns, cells: _Cells, stat: _Statuses
                  ) -> LotTable:
     """The lot table: ids and statuses, values, cell states and passthrough columns."""
+    status, detail = stat.columns()
     ids = pd.DataFrame({
-        "row": np.asarray(raw.rows, dtype=int), "lot_id": cells.lot_ids.to_numpy(dtype=object),
-        "status": stat.status, "detail": stat.detail, "grade": cells.grade,
+        "row": np.asarray(raw.rows, dtype=int), "lot_id": _text(cells.lot_ids),
+        "status": status, "detail": detail, "grade": cells.grade,
     })
-    extra = pd.DataFrame({p: raw.cells[h].to_numpy(dtype=object)
-                          for p, h in columns.passthrough.items()}, index=ids.index)
+    extra = pd.DataFrame({p: _text(_texts(raw.cells[h])) for p, h in columns.passthrough.items()},
+                         index=ids.index)
+    flags = pd.DataFrame({name: cellmod.state_text(codes) for name, codes in cells.flags.items()},
+                         index=ids.index)
     return LotTable(
         ids=ids, values=pd.DataFrame(cells.values, index=ids.index),
-        flags=pd.DataFrame(cells.flags, index=ids.index), extra=extra,
+        flags=flags, extra=extra,
         specs=tuple(columns.specs), source=raw.source, blank_rows=raw.blank_rows,
         decimal=cells.decimal, has_grade=bool(columns.grade),
     )
+
+
+def _text(column: pd.Series) -> pd.Series:
+    """A text column on a fresh RangeIndex (what an object column of str becomes in a frame)."""
+    return pd.Series(pd.array(column.to_numpy(dtype=object) if column.dtype == object
+                              else column.array, dtype=str))
 
 
 def _short(text: object) -> str:
