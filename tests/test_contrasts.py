@@ -106,8 +106,8 @@ def test_boot_deltas_are_cliffs_delta_of_the_resampled_bands():
     kept = draw_resamples(group, 3, 500, np.random.default_rng(5))
     draws = BootDeltas([group], [kept], {"x": values}, 500)("S1", "x")
     # resample 0 by hand: each lot repeated as often as it was drawn
-    top = np.repeat(values[kept.top_rows], kept.top[:, 0].astype(int))
-    bottom = np.repeat(values[kept.bottom_rows], kept.bottom[:, 0].astype(int))
+    top = np.repeat(values[kept.top_rows], kept.weights("top")[:, 0].astype(int))
+    bottom = np.repeat(values[kept.bottom_rows], kept.weights("bottom")[:, 0].astype(int))
     by_hand = np.sign(top[:, None] - bottom[None, :]).mean()
     assert draws[0] == pytest.approx(by_hand)
     assert BootDeltas([group], [kept], {"x": values}, 500)("S9", "x") is None

@@ -833,3 +833,153 @@ def test_drivers_table_reports_these_statistics_per_style() -> None:
     cuts = profiles.thresholds.dropna(subset=["cut"])
     assert len(cuts) >= 2
     assert ((cuts["cut_ci_low"] <= cuts["cut"]) & (cuts["cut"] <= cuts["cut_ci_high"])).all()
+
+
+# --------------------------------------------------------------------------- bounded memory
+
+
+def _one_band_group(n_top: int, n_bottom: int, seed: int):
+    """A group of one style with a top and a bottom band of rounded values (ties)."""
+    from vinstrata.profile.groups import Group
+
+    rng = np.random.default_rng(seed)
+    values = np.round(np.concatenate([rng.normal(0.4, 1, n_top), rng.normal(0, 1, n_bottom)]),
+                      2)
+    bands = np.concatenate([np.full(n_top, 2), np.full(n_bottom, 0)])
+    return Group("S1", True, np.arange(n_top + n_bottom), bands), values
+
+
+@pytest.mark.parametrize("n,b,step", [(7, 13, 1), (7, 13, 5), (101, 40, 3), (2, 9, 4)])
+def test_numpy_draws_the_same_stream_whole_or_in_blocks(n: int, b: int, step: int) -> None:
+    # The bounded-memory bootstrap relies on numpy's Generator giving the same numbers
+    # whether a b x n draw is made at once or a block of rows at a time (odd sizes
+    # included, where a 64-bit output would be split), and on leaving the generator
+    # in the same state; likewise multinomial (the partial correlations) and
+    # standard_normal (the smoothing).
+    def split(draw, rng):
+        return np.concatenate([draw(rng, min(step, b - i)) for i in range(0, b, step)])
+
+    for draw in (lambda r, k: r.integers(0, n, size=(k, n), dtype=np.int64),
+                 lambda r, k: r.multinomial(n, np.full(n, 1.0 / n), size=k),
+                 lambda r, k: r.standard_normal((k, n))):
+        whole, blocked = np.random.default_rng(9), np.random.default_rng(9)
+        np.testing.assert_array_equal(split(draw, blocked), draw(whole, b))
+        assert whole.random() == blocked.random()
+
+
+def test_resamples_drawn_block_by_block_equal_the_whole_matrices() -> None:
+    # draw_resamples keeps only generator states; its blocks must be the columns of
+    # resample_weights drawn from the same generator (top band first), and the
+    # generator must be left where drawing both whole matrices leaves it.
+    from vinstrata.profile.groups import draw_resamples
+
+    group, _ = _one_band_group(37, 23, 1)
+    for chunk in (10**7, 130, 1):  # one block, several, one resample per block
+        old = stats.CHUNK_CELLS
+        stats.CHUNK_CELLS = chunk
+        try:
+            ref, rng = np.random.default_rng(4), np.random.default_rng(4)
+            w_top, w_bottom = stats.resample_weights(ref, 37, 50), stats.resample_weights(
+                ref, 23, 50)
+            kept = draw_resamples(group, 3, 50, rng)
+            assert ref.random() == rng.random()
+            top = np.concatenate([t for _, t, _ in kept.blocks()])
+            bottom = np.concatenate([b for _, _, b in kept.blocks()])
+        finally:
+            stats.CHUNK_CELLS = old
+        np.testing.assert_array_equal(top.T, w_top)
+        np.testing.assert_array_equal(bottom.T, w_bottom)
+        np.testing.assert_array_equal(kept.weights("top"), w_top)
+
+
+def test_count_plan_deltas_equal_the_direct_count_computation() -> None:
+    # DeltaPlan.deltas (what the profile stage runs, a block at a time) against the
+    # direct computation over both bands' distinct values (Sorted.counts +
+    # delta_from_counts) and against Cliff 1993's pairwise definition: equal to the bit
+    # on tied values with lots missing a value.
+    rng = np.random.default_rng(12)
+    top, bottom = _tied_sample(rng, 41, 0.5), _tied_sample(rng, 29)
+    top[[2, 7]] = np.nan
+    bottom[5] = np.nan
+    w_top, w_bottom = stats.resample_weights(rng, 41, 300), stats.resample_weights(rng, 29, 300)
+    sorted_ = stats.Sorted.of(top, bottom)
+    direct = stats.delta_from_counts(sorted_.counts(w_top, "top"),
+                                     sorted_.counts(w_bottom, "bottom"))
+    plan = stats.DeltaPlan.of(top, bottom)
+    blocked = np.concatenate([plan.deltas(w_top[:, s], w_bottom[:, s])
+                              for s in stats.blocks(300, 7000)])
+    np.testing.assert_array_equal(plan.deltas(w_top, w_bottom), direct)
+    np.testing.assert_array_equal(blocked, direct)
+    t = np.repeat(np.nan_to_num(top, nan=np.inf), w_top[:, 0].astype(int))
+    b = np.repeat(bottom, w_bottom[:, 0].astype(int))
+    t, b = t[np.isfinite(t)], b[np.isfinite(b)]
+    assert direct[0] == pytest.approx(np.sign(t[:, None] - b[None, :]).mean(), abs=1e-12)
+
+
+def _sorted_youden(top: np.ndarray, bottom: np.ndarray, higher_better: bool) -> np.ndarray:
+    """Youden cuts of each row by sorting every row (the rule of youden_from_counts: J n1 n2
+    as whole numbers, ties to the highest cut, or the lowest for lower_better)."""
+    out = np.full(top.shape[0], np.nan)
+    sign = 1.0 if higher_better else -1.0
+    for k in range(top.shape[0]):
+        t, b = sign * top[k][np.isfinite(top[k])], sign * bottom[k][np.isfinite(bottom[k])]
+        values = np.unique(np.concatenate([t, b]))
+        if values.size == 0:
+            continue
+        score = (b.size * (t[None, :] >= values[:, None]).sum(axis=1)
+                 - t.size * (b[None, :] >= values[:, None]).sum(axis=1))
+        out[k] = sign * values[np.flatnonzero(score == score.max())[-1]]
+    return out
+
+
+@pytest.mark.parametrize("higher_better", [True, False])
+def test_binned_youden_cuts_equal_the_cuts_of_sorted_rows(higher_better: bool) -> None:
+    # youden_cuts_of_rows sorts only the bins that can hold the best cut; it must give
+    # every row's cut of the full sort: smoothed (continuous) rows, rounded rows full of
+    # ties, rows with missing lots, a far outlier that squeezes the bins, constant rows.
+    rng = np.random.default_rng(21)
+    for case in range(60):
+        n1, n2, rows = (int(v) for v in rng.integers([1, 1, 1], [80, 80, 12]))
+        top = rng.normal(0.6 if higher_better else -0.6, 1.0, (rows, n1))
+        bottom = rng.normal(0.0, rng.uniform(0.3, 3.0), (rows, n2))
+        if case % 3 == 1:
+            top, bottom = np.round(top, 1), np.round(bottom, 1)
+        if case % 4 == 2:
+            top[rng.random(top.shape) < 0.3] = np.nan
+        if case % 5 == 3:
+            top[:, 0] = 1e6
+        if case % 11 == 4:
+            top[:], bottom[:] = 2.0, 2.0
+        got = stats.youden_cuts_of_rows(top, bottom, higher_better)
+        np.testing.assert_array_equal(got, _sorted_youden(top, bottom, higher_better),
+                                      err_msg=f"case {case}")
+
+
+def _peak_bootstrap_bytes(n: int, b: int) -> int:
+    """Peak traced memory of one band pair's bootstrap: deltas and smoothed cuts."""
+    import tracemalloc
+
+    from vinstrata.profile.drivers import boot_deltas
+    from vinstrata.profile.groups import draw_resamples
+    from vinstrata.profile.thresholds import _smoothed_cuts
+
+    group, values = _one_band_group(n // 2, n - n // 2, 3)
+    tracemalloc.start()
+    try:
+        kept = draw_resamples(group, 3, b, np.random.default_rng(1))
+        xt, xb = values[kept.top_rows], values[kept.bottom_rows]
+        boot_deltas(kept, {"x": (xt, xb)})
+        _smoothed_cuts([({"direction": "higher_better"}, xt, xb, np.random.default_rng(2))],
+                       kept)
+        return tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+
+
+def test_bootstrap_memory_does_not_grow_with_lots_times_resamples() -> None:
+    # Drawn whole, 200 resamples of 200,000 lots take 20 B x n bytes (0.8 GB) and of 20,000
+    # lots a tenth of that; drawn in blocks of at most CHUNK_CELLS cells the two peaks are
+    # about the same: a block's cells, not lots x resamples.
+    small, large = _peak_bootstrap_bytes(20_000, 200), _peak_bootstrap_bytes(200_000, 200)
+    assert large < 2.5 * small  # ten times the lots
+    assert large < 20 * 200 * 200_000 / 3

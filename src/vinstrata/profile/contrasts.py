@@ -64,14 +64,18 @@ class BootDeltas:
         Analyte -> values of every lot (NaN where imputed or missing).
     bootstrap : int
         Resamples per band.
+    known : dict, optional
+        (style, analyte) -> the deltas already drawn for the drivers table (the same
+        numbers, kept rather than drawn again).
     """
 
     def __init__(self, groups: list[Group], resamples: list[Resamples],
-                 observed: dict[str, np.ndarray], bootstrap: int) -> None:
+                 observed: dict[str, np.ndarray], bootstrap: int,
+                 known: dict[tuple[str, str], np.ndarray] | None = None) -> None:
         self._kept = {g.style: r for g, r in zip(groups, resamples)}
         self._observed = observed
         self._b = bootstrap
-        self._cache: dict[tuple[str, str], np.ndarray | None] = {}
+        self._cache: dict[tuple[str, str], np.ndarray | None] = dict(known or {})
 
     def __call__(self, style: str, analyte: str) -> np.ndarray | None:
         key = (style, analyte)
@@ -81,14 +85,14 @@ class BootDeltas:
 
     def _deltas(self, style: str, analyte: str) -> np.ndarray | None:
         kept = self._kept.get(style)
-        if kept is None or kept.top is None or kept.bottom is None:
+        if kept is None or not kept.complete:
             return None
         values = self._observed[analyte]
-        sorted_ = stats.Sorted.of(values[kept.top_rows], values[kept.bottom_rows])
+        plan = stats.DeltaPlan.of(values[kept.top_rows], values[kept.bottom_rows])
         out = np.empty(self._b)
-        for block in stats.blocks(self._b, len(sorted_.values)):
-            out[block] = stats.delta_from_counts(sorted_.counts(kept.top[:, block], "top"),
-                                                 sorted_.counts(kept.bottom[:, block], "bottom"))
+        for part, top, bottom in kept.blocks():
+            out[part] = plan.deltas(stats.lots_by_resamples(top),
+                                    stats.lots_by_resamples(bottom))
         return out
 
 

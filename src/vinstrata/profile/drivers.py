@@ -37,6 +37,7 @@ the measured (or censored) values only.
 from __future__ import annotations
 
 import dataclasses
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -47,7 +48,7 @@ from vinstrata.profile import stats
 from vinstrata.profile.bands import quantile_share_notes
 from vinstrata.profile.contrasts import BootDeltas, contrasts
 from vinstrata.profile.groups import POOLED, Group, Resamples, draw_resamples, style_groups
-from vinstrata.profile.partial import PARTIAL_COLUMNS, add_conditional
+from vinstrata.profile.partial import PARTIAL_COLUMNS, add_conditional, conditional_effects
 from vinstrata.profile.thresholds import (
     EXTRA_THRESHOLD_COLUMNS,
     THRESHOLD_COLUMNS,
@@ -59,6 +60,8 @@ from vinstrata.read.lots import UNASSIGNED, AnalyteSpec
 from vinstrata.read.lots import observed as lot_values
 from vinstrata.segment.model import StyleModel
 from vinstrata.settings import ProfileSettings
+
+WORKERS = 2  # threads for the parts of the profile that draw from streams of their own
 
 DRIVER_COLUMNS = ("style", "analyte", "n_top", "n_bottom", "median_top", "median_bottom",
                   "cliffs_delta", "ci_low", "ci_high", "hedges_g", "p_value", "q_value",
@@ -83,9 +86,17 @@ class Profiles:
 
 def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
                    settings: ProfileSettings, rng: np.random.Generator
-                   ) -> tuple[list[dict], Resamples]:
-    """Driver rows of one group, and the resamples kept for its thresholds."""
+                   ) -> tuple[list[dict], Resamples, dict[str, np.ndarray]]:
+    """Driver rows of one group, the resamples kept for its thresholds and its bootstrap
+    deltas per analyte (those with enough lots)."""
     resamples = draw_resamples(group, len(settings.bands.labels), settings.bootstrap, rng)
+    out = _point_rows(group, observed, grades, resamples, settings)
+    return out, resamples, _add_intervals(out, observed, resamples, settings)
+
+
+def _point_rows(group: Group, observed: dict[str, np.ndarray], grades: np.ndarray,
+                resamples: Resamples, settings: ProfileSettings) -> list[dict]:
+    """Driver rows of one group with every statistic but the delta interval."""
     out = []
     for analyte, values in observed.items():
         row = _plain_row(group, analyte, values, grades, resamples)
@@ -99,11 +110,48 @@ def _profile_group(group: Group, observed: dict[str, np.ndarray], grades: np.nda
             out.append(row)
             continue
         row.update(_effect_sizes(values[resamples.top_rows], values[resamples.bottom_rows],
-                                 resamples, settings))
+                                 settings))
         if not group.trusted:
             row["note"] = _join("untrusted style", row["note"])
         out.append(row)
-    return out, resamples
+    return out
+
+
+def _add_intervals(rows: list[dict], observed: dict[str, np.ndarray], resamples: Resamples,
+                   settings: ProfileSettings, only: set[str] | None = None
+                   ) -> dict[str, np.ndarray]:
+    """Fill the BCa delta interval into the rows that have a delta (of the analytes in
+    ``only``, when given); return their bootstrap deltas."""
+    wanted = [r for r in rows if np.isfinite(r["cliffs_delta"])
+              and (only is None or r["analyte"] in only)]
+    bands = {r["analyte"]: (observed[r["analyte"]][resamples.top_rows],
+                            observed[r["analyte"]][resamples.bottom_rows]) for r in wanted}
+    boots = boot_deltas(resamples, bands)
+    for row in wanted:
+        xt, xb = bands[row["analyte"]]
+        row["ci_low"], row["ci_high"] = stats.delta_interval(
+            xt[np.isfinite(xt)], xb[np.isfinite(xb)], boots[row["analyte"]], settings.ci_level)
+    return boots
+
+
+def boot_deltas(resamples: Resamples, bands: dict[str, tuple[np.ndarray, np.ndarray]]
+                ) -> dict[str, np.ndarray]:
+    """Cliff's delta of every resample for each analyte's (top, bottom) band values.
+
+    One pass over the group's resamples, a block at a time, shared by all analytes:
+    memory is a block's multiplicities plus each analyte's count plan, never lots x
+    resamples.
+    """
+    out = {a: np.empty(resamples.bootstrap) for a in bands}
+    if not bands:
+        return out
+    plans = {a: stats.DeltaPlan.of(xt, xb) for a, (xt, xb) in bands.items()}
+    for part, top, bottom in resamples.blocks():
+        w_top, w_bottom = stats.lots_by_resamples(top), stats.lots_by_resamples(bottom)
+        del top, bottom
+        for analyte, plan in plans.items():
+            out[analyte][part] = plan.deltas(w_top, w_bottom)
+    return out
 
 
 def _plain_row(group: Group, analyte: str, values: np.ndarray, grades: np.ndarray,
@@ -127,23 +175,14 @@ def _plain_row(group: Group, analyte: str, values: np.ndarray, grades: np.ndarra
     }
 
 
-def _effect_sizes(xt: np.ndarray, xb: np.ndarray, resamples: Resamples,
-                  settings: ProfileSettings) -> dict:
-    """Cliff's delta with its BCa CI, Hedges' g with its CI, the Brunner-Munzel and
-    Mann-Whitney p-values."""
-    b = settings.bootstrap
+def _effect_sizes(xt: np.ndarray, xb: np.ndarray, settings: ProfileSettings) -> dict:
+    """Cliff's delta, Hedges' g with its CI, the Brunner-Munzel and Mann-Whitney p-values
+    (the delta's BCa interval is filled by :func:`_add_intervals`)."""
     top, bottom = xt[np.isfinite(xt)], xb[np.isfinite(xb)]
-    sorted_ = stats.Sorted.of(xt, xb)
-    deltas = np.empty(b)
-    for block in stats.blocks(b, len(sorted_.values)):
-        deltas[block] = stats.delta_from_counts(
-            sorted_.counts(resamples.top[:, block], "top"),
-            sorted_.counts(resamples.bottom[:, block], "bottom"))
     g = stats.hedges_g(top, bottom, settings.ci_level)
     delta = stats.cliffs_delta(top, bottom)
-    ci_low, ci_high = stats.delta_interval(top, bottom, deltas, settings.ci_level)
     return {
-        "cliffs_delta": delta, "ci_low": ci_low, "ci_high": ci_high,
+        "cliffs_delta": delta,
         "hedges_g": g.g, "hedges_g_ci_low": g.ci_low, "hedges_g_ci_high": g.ci_high,
         "p_value": stats.brunner_munzel_p(top, bottom), "magnitude": stats.magnitude(delta),
         "mann_whitney_p": stats.mann_whitney_p(top, bottom),
@@ -219,16 +258,24 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
                                      settings.bands):
         rep.warn(note)
     grades = lots["grade"].to_numpy(dtype=float)
-    drivers, kept = _drivers(groups, observed, grades, settings, rep)
-    if pooled:  # the full profile (placing needs only the drivers themselves)
-        drivers = _unassigned_check(drivers, groups, observed, grades, lots, styles, settings)
-    thresholds = _thresholds(groups, kept, drivers, observed, styles, settings, cut_intervals)
+    drivers, kept, boots = _drivers(groups, observed, grades, settings, rep)
+    # the check and each style's cut intervals draw from streams of their own, so they run
+    # two at a time (on two cores: numpy releases the GIL in its long loops); the cuts read
+    # only the drivers' verdicts and deltas, which the check leaves as they are
+    with ThreadPoolExecutor(max_workers=WORKERS) as pool:
+        checked = (pool.submit(_unassigned_check, drivers, groups, observed, grades, lots,
+                               styles, settings)
+                   if pooled else None)  # the full profile (placing needs only the drivers)
+        thresholds = _thresholds(groups, kept, drivers, observed, styles, settings,
+                                 cut_intervals, pool)
+        if checked is not None:
+            drivers = checked.result()
     labels = {s.name: s.label for s in specs}
     return Profiles(
         drivers=drivers, thresholds=thresholds,
         # the gaps between styles resample the same draws as the styles' own intervals
         contrasts=contrasts(drivers, labels, BootDeltas(groups, kept, observed,
-                                                        settings.bootstrap),
+                                                        settings.bootstrap, boots),
                             settings.ci_level),
         band_counts=_band_counts(groups, settings.bands.labels),
         band_stats=_band_stats(groups, observed, settings.bands.labels), settings=settings,
@@ -236,21 +283,29 @@ def profile_table(values: pd.DataFrame, flags: pd.DataFrame, lots: pd.DataFrame,
 
 
 def _drivers(groups: list[Group], observed: dict[str, np.ndarray], grades: np.ndarray,
-             settings: ProfileSettings, rep: Reporter) -> tuple[pd.DataFrame, list[Resamples]]:
-    """The drivers table of every group (ranked), and each group's resamples."""
-    rng = np.random.default_rng(settings.seed)
-    rows, kept = [], []
-    for i, group in enumerate(groups):
-        group_rows, resamples = _profile_group(group, observed, grades, settings, rng)
-        rows += group_rows
-        kept.append(resamples)
-        rep.bar(i + 1, len(groups), "  bootstrap")
-    drivers = _mark_drivers(pd.DataFrame(rows), settings.fdr)
-    # conditional effects and roles, from a stream of their own per style (keyed), so
-    # every other column draws as it would without them
-    drivers = add_conditional(drivers, groups, observed, grades, settings.bootstrap,
-                              settings.ci_level, settings.seed)
-    return drivers[list(DRIVER_COLUMNS) + list(EXTRA_DRIVER_COLUMNS)], kept
+             settings: ProfileSettings, rep: Reporter
+             ) -> tuple[pd.DataFrame, list[Resamples], dict[tuple[str, str], np.ndarray]]:
+    """The drivers table of every group (ranked), each group's resamples and the bootstrap
+    deltas of every (style, analyte) row with a delta."""
+    # conditional effects, from a stream of their own per style (keyed), so every other
+    # column draws as it would without them; they need nothing the drivers decide, so they
+    # are drawn on a second core meanwhile (numpy releases the GIL while it draws)
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        effects = pool.submit(conditional_effects, groups, observed, grades,
+                              settings.bootstrap, settings.ci_level, settings.seed)
+        rng = np.random.default_rng(settings.seed)
+        rows, kept, boots = [], [], {}
+        for i, group in enumerate(groups):
+            group_rows, resamples, deltas = _profile_group(group, observed, grades, settings,
+                                                           rng)
+            rows += group_rows
+            kept.append(resamples)
+            boots.update({(group.style, a): d for a, d in deltas.items()})
+            rep.bar(i + 1, len(groups), "  bootstrap")
+        drivers = _mark_drivers(pd.DataFrame(rows), settings.fdr)
+        drivers = add_conditional(drivers, groups, observed, grades, settings.bootstrap,
+                                  settings.ci_level, settings.seed, effects.result())
+    return drivers[list(DRIVER_COLUMNS) + list(EXTRA_DRIVER_COLUMNS)], kept, boots
 
 
 def _unassigned_check(drivers: pd.DataFrame, groups: list[Group],
@@ -262,6 +317,8 @@ def _unassigned_check(drivers: pd.DataFrame, groups: list[Group],
     The styles whose lots and bands do not change keep their rows; the others are
     profiled again (their resamples keyed by style, so the check draws the same
     whatever else changes), and the verdicts are taken over one BH family as usual.
+    The q-values need no bootstrap, so only the rows with q below the FDR, the only
+    ones that can be drivers, get their delta interval.
     """
     style = lots["style"].to_numpy(dtype=object)
     unassigned = style == UNASSIGNED
@@ -270,7 +327,7 @@ def _unassigned_check(drivers: pd.DataFrame, groups: list[Group],
     include = not settings.include_unassigned
     flipped = dataclasses.replace(settings, include_unassigned=include)
     before = {g.style: g for g in groups}
-    rows = []
+    rows, redone = [], []
     for group in style_groups(lots, styles, flipped.bands, include):
         if group.style == POOLED:
             continue
@@ -279,7 +336,16 @@ def _unassigned_check(drivers: pd.DataFrame, groups: list[Group],
             rows += drivers[drivers["style"] == group.style].to_dict("records")
         else:
             rng = stats.keyed_rng(settings.seed, "unassigned", group.style)
-            rows += _profile_group(group, observed, grades, flipped, rng)[0]
+            resamples = draw_resamples(group, len(flipped.bands.labels), flipped.bootstrap,
+                                       rng, advance=False)
+            mine = _point_rows(group, observed, grades, resamples, flipped)
+            redone.append((mine, resamples))
+            rows += mine
+    q = _mark_drivers(pd.DataFrame(rows), settings.fdr)["q_value"].to_numpy()
+    q_of = {(r["style"], r["analyte"]): v for r, v in zip(rows, q)}
+    for mine, resamples in redone:
+        only = {r["analyte"] for r in mine if q_of[(r["style"], r["analyte"])] < settings.fdr}
+        _add_intervals(mine, observed, resamples, flipped, only)
     other = _mark_drivers(pd.DataFrame(rows), settings.fdr).set_index(["style", "analyte"])
     nearest = lots["nearest_style"].to_numpy(dtype=object)
     n_all = int(unassigned.sum())
@@ -320,14 +386,18 @@ def _mark_drivers(drivers: pd.DataFrame, fdr: float) -> pd.DataFrame:
 
 def _thresholds(groups: list[Group], kept: list[Resamples], drivers: pd.DataFrame,
                 observed: dict[str, np.ndarray], styles: pd.DataFrame,
-                settings: ProfileSettings, cut_intervals: bool) -> pd.DataFrame:
-    """The thresholds table of every style (the pooled range has none)."""
-    rows = []
+                settings: ProfileSettings, cut_intervals: bool,
+                pool: ThreadPoolExecutor | None = None) -> pd.DataFrame:
+    """The thresholds table of every style (the pooled range has none), the styles run
+    on ``pool`` when given."""
+    tasks = []
     for group, resamples in zip(groups, kept):
         if group.style == POOLED:
             continue
-        mine = drivers[drivers["style"] == group.style]
-        rows += group_thresholds(group, mine, observed, resamples, settings, cut_intervals)
+        args = (group, drivers[drivers["style"] == group.style], observed, resamples, settings,
+                cut_intervals)
+        tasks.append(pool.submit(group_thresholds, *args) if pool else args)
+    rows = [r for t in tasks for r in (t.result() if pool else group_thresholds(*t))]
     thresholds = pd.DataFrame(rows, columns=list(THRESHOLD_COLUMNS + EXTRA_THRESHOLD_COLUMNS))
     trusted = dict(zip(styles["style"], styles["trusted"]))
     thresholds["trusted"] = thresholds["style"].map(trusted).astype(bool)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -29,20 +30,49 @@ class Group:
 
 @dataclass(frozen=True)
 class Resamples:
-    """A group's top and bottom band and their bootstrap multiplicities.
+    """A group's top and bottom band and where their bootstrap draws begin.
 
     Drawn once per group and shared by every analyte's delta interval and cut
-    interval; ``top`` and ``bottom`` are None for an empty band.
+    interval. The multiplicities (lots x resamples) are not kept: each band
+    keeps the generator state its draws start from, and :meth:`blocks`
+    draws them again a block of resamples at a time, the same numbers in the
+    same order, so memory stays within :data:`~vinstrata.profile.stats.CHUNK_CELLS`
+    cells per band whatever the lots and resamples. ``top_state`` /
+    ``bottom_state`` are None for an empty band.
     """
 
     top_rows: np.ndarray
     bottom_rows: np.ndarray
-    top: np.ndarray | None
-    bottom: np.ndarray | None
+    bootstrap: int
+    top_state: dict | None
+    bottom_state: dict | None
+
+    @property
+    def complete(self) -> bool:
+        """Whether both bands have lots (and so resamples)."""
+        return self.top_state is not None and self.bottom_state is not None
+
+    def blocks(self) -> Iterator[tuple[slice, np.ndarray, np.ndarray]]:
+        """Each block of resamples with its top and bottom multiplicities (resamples x lots,
+        int64), blocks as :func:`~vinstrata.profile.stats.blocks` over both bands' lots."""
+        if not self.complete:
+            return
+        parts = stats.blocks(self.bootstrap, len(self.top_rows) + len(self.bottom_rows))
+        yield from zip(parts, stats.count_blocks(self.top_state, len(self.top_rows), parts),
+                       stats.count_blocks(self.bottom_state, len(self.bottom_rows), parts))
+
+    def weights(self, band: str) -> np.ndarray | None:
+        """The whole lots x resamples multiplicities of ``band`` ("top" or "bottom"), as
+        :func:`~vinstrata.profile.stats.resample_weights` gives them: for small cases."""
+        state = self.top_state if band == "top" else self.bottom_state
+        if state is None:
+            return None
+        n = len(self.top_rows if band == "top" else self.bottom_rows)
+        return stats.resample_weights(stats.generator_at(state), n, self.bootstrap)
 
 
 def draw_resamples(group: Group, n_bands: int, bootstrap: int,
-                   rng: np.random.Generator) -> Resamples:
+                   rng: np.random.Generator, advance: bool = True) -> Resamples:
     """The top and bottom band of ``group`` and ``bootstrap`` resamples of each (top first).
 
     Parameters
@@ -53,7 +83,11 @@ def draw_resamples(group: Group, n_bands: int, bootstrap: int,
     bootstrap : int
         Resamples per band.
     rng : Generator
-        Drawn from in group order, so that a run is reproducible from its seed.
+        Drawn from in group order, so that a run is reproducible from its seed; left
+        past both bands' draws, as if they had been drawn whole.
+    advance : bool
+        Leave ``rng`` past the bottom band's draws too (a stream used for this group
+        only need not).
 
     Returns
     -------
@@ -61,10 +95,13 @@ def draw_resamples(group: Group, n_bands: int, bootstrap: int,
     """
     top_rows = group.rows[group.bands == n_bands - 1]
     bottom_rows = group.rows[group.bands == 0]
-    top = stats.resample_weights(rng, len(top_rows), bootstrap) if len(top_rows) else None
-    bottom = (stats.resample_weights(rng, len(bottom_rows), bootstrap) if len(bottom_rows)
-              else None)
-    return Resamples(top_rows=top_rows, bottom_rows=bottom_rows, top=top, bottom=bottom)
+    states = []
+    for rows, last in ((top_rows, False), (bottom_rows, True)):
+        states.append(rng.bit_generator.state if len(rows) else None)
+        if len(rows) and (advance or not last):
+            stats.skip_draws(rng, len(rows), bootstrap)
+    return Resamples(top_rows=top_rows, bottom_rows=bottom_rows, bootstrap=bootstrap,
+                     top_state=states[0], bottom_state=states[1])
 
 
 def style_groups(lots: pd.DataFrame, styles: pd.DataFrame, bands: Bands,

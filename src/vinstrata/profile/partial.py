@@ -48,7 +48,6 @@ PARTIAL_COLUMNS = ("partial_rho", "partial_ci_low", "partial_ci_high", "role", "
 RIDGE = 0.01  # shrinkage of the correlation matrix towards the identity before inverting
 COLLINEAR = 0.995  # R^2 on the others above which a driver is "unclear" (a near-identity)
 MOVES_WITH_MIN = 0.3  # |rank correlation| below which a driver does not explain another
-BLOCK = 200  # resamples per block (memory: block x analytes^2)
 
 
 def normal_scores(x: np.ndarray) -> np.ndarray:
@@ -95,11 +94,38 @@ def partial_from_corr(corr: np.ndarray, ridge: float | None = None) -> np.ndarra
     return -prec[..., 0, 1:] / np.sqrt(diag[..., :1] * diag[..., 1:])
 
 
-def _weighted_corr(z: np.ndarray, weights: np.ndarray) -> np.ndarray:
-    """Correlation matrices of the columns of ``z`` under each row of ``weights``."""
+def _products(z: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The columns of ``z`` and their pairwise products (upper triangle), as the rows of
+    one contiguous matrix (written row by row: no larger intermediate), with the
+    triangle's row and column indices."""
+    i, j = np.triu_indices(z.shape[1])
+    columns = np.ascontiguousarray(z.T)
+    k = columns.shape[0]
+    out = np.empty((k + i.size, columns.shape[1]))
+    out[:k] = columns
+    for m, (a, b) in enumerate(zip(i, j)):
+        np.multiply(columns[a], columns[b], out=out[k + m])
+    return out, i, j
+
+
+def _weighted_corr(z: np.ndarray, weights: np.ndarray,
+                   products: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+                   ) -> np.ndarray:
+    """Correlation matrices of the columns of ``z`` under each row of ``weights``.
+
+    One matrix product of the columns and their pairwise products (``products``, from
+    :func:`_products`) with the weights gives every weighted mean and second moment,
+    without a resamples x lots x analytes intermediate.
+    """
+    k = z.shape[1]
+    rows, i, j = products if products is not None else _products(z)
     w = weights / weights.sum(axis=1, keepdims=True)
-    mean = w @ z
-    cov = np.einsum("bn,ni,nj->bij", w, z, z, optimize=True) - mean[:, :, None] * mean[:, None, :]
+    moments = (rows @ w.T).T
+    mean = moments[:, :k]
+    second = np.empty((w.shape[0], k, k))
+    second[:, i, j] = moments[:, k:]
+    second[:, j, i] = moments[:, k:]
+    cov = second - mean[:, :, None] * mean[:, None, :]
     sd = np.sqrt(np.clip(np.diagonal(cov, axis1=1, axis2=2), 1e-300, None))
     return cov / (sd[:, :, None] * sd[:, None, :])
 
@@ -135,10 +161,12 @@ def partial_effects(values: np.ndarray, grades: np.ndarray, bootstrap: int, ci_l
     if n >= 10 and keep[1:].any():
         full = partial_from_corr(np.corrcoef(zk, rowvar=False)[None])[0]
         boots = np.empty((bootstrap, full.size))
-        for start in range(0, bootstrap, BLOCK):
-            b = min(BLOCK, bootstrap - start)
-            weights = rng.multinomial(n, np.full(n, 1.0 / n), size=b).astype(float)
-            boots[start:start + b] = partial_from_corr(_weighted_corr(zk, weights))
+        products = _products(zk)
+        # numpy's multinomial gives the same stream drawn whole or a block of rows at a time
+        for part in stats.blocks(bootstrap, n):
+            weights = rng.multinomial(n, np.full(n, 1.0 / n),
+                                      size=part.stop - part.start).astype(float)
+            boots[part] = partial_from_corr(_weighted_corr(zk, weights, products))
         alpha = (1.0 - ci_level) / 2.0
         lo, hi = np.nanquantile(boots, [alpha, 1.0 - alpha], axis=0)
         idx = np.flatnonzero(keep[1:])
@@ -211,9 +239,32 @@ def assign_roles(part: pd.DataFrame, corr: np.ndarray, analytes: list[str]) -> p
     return pd.DataFrame({"role": role, "moves_with": moves})
 
 
+def conditional_effects(groups: list[Group], observed: dict[str, np.ndarray],
+                        grades: np.ndarray, bootstrap: int, ci_level: float, seed: int
+                        ) -> dict[str, pd.DataFrame]:
+    """The partial effects (:func:`partial_effects`) of every trusted style with at least
+    10 graded lots, indexed by analyte; each style draws from its own keyed stream, so
+    this may run beside the rest of the profile (it reads nothing the drivers decide)."""
+    analytes = list(observed)
+    out = {}
+    for group in groups:
+        if group.style == POOLED or not group.trusted:
+            continue
+        rows = group.rows[np.isfinite(grades[group.rows])]
+        if len(rows) < 10:
+            continue
+        x = np.column_stack([observed[a][rows] for a in analytes])
+        rng = stats.keyed_rng(seed, "partial", group.style)
+        eff = partial_effects(x, grades[rows], bootstrap, ci_level, rng)
+        eff.index = analytes
+        out[group.style] = eff
+    return out
+
+
 def add_conditional(drivers: pd.DataFrame, groups: list[Group],
                     observed: dict[str, np.ndarray], grades: np.ndarray, bootstrap: int,
-                    ci_level: float, seed: int) -> pd.DataFrame:
+                    ci_level: float, seed: int,
+                    effects: dict[str, pd.DataFrame] | None = None) -> pd.DataFrame:
     """``drivers`` with the partial columns filled for every trusted style.
 
     Parameters
@@ -228,6 +279,8 @@ def add_conditional(drivers: pd.DataFrame, groups: list[Group],
     ci_level : float
     seed : int
         The profile's seed; each style draws from its own keyed stream.
+    effects : dict, optional
+        :func:`conditional_effects` of the same arguments, when already computed.
 
     Returns
     -------
@@ -241,16 +294,14 @@ def add_conditional(drivers: pd.DataFrame, groups: list[Group],
     for col in PARTIAL_COLUMNS[3:]:
         out[col] = ""
     analytes = list(observed)
+    if effects is None:
+        effects = conditional_effects(groups, observed, grades, bootstrap, ci_level, seed)
     for group in groups:
-        if group.style == POOLED or not group.trusted:
+        if group.style not in effects:
             continue
+        eff = effects[group.style]
         rows = group.rows[np.isfinite(grades[group.rows])]
-        if len(rows) < 10:
-            continue
         x = np.column_stack([observed[a][rows] for a in analytes])
-        rng = stats.keyed_rng(seed, "partial", group.style)
-        eff = partial_effects(x, grades[rows], bootstrap, ci_level, rng)
-        eff.index = analytes
         mask = (out["style"] == group.style).to_numpy()
         idx = out.index[mask]
         by = out.loc[idx, "analyte"]

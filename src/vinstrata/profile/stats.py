@@ -27,7 +27,11 @@
   is drawn), drawn once per style and reused for every analyte; with the
   values sorted once, each resample's Mann-Whitney U and ROC curve come from
   cumulative sums, so B resamples cost O(B (n1 + n2)) per analyte instead of
-  O(B n1 n2).
+  O(B n1 n2) (:class:`DeltaPlan`). The multiplicities are never held whole
+  (lots x resamples): a band keeps the generator state its draws begin at and
+  draws them again a block of at most :data:`CHUNK_CELLS` cells at a time
+  (:func:`count_blocks`), the same numbers numpy gives in one call, so memory
+  does not grow with lots x resamples and results do not depend on the blocks.
 
 Magnitude labels of Cliff's delta follow Romano et al. (2006): |delta| below
 0.147 negligible, below 0.33 small, below 0.474 medium, else large.
@@ -37,14 +41,17 @@ from __future__ import annotations
 
 import warnings
 import zlib
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse
 from scipy import special, stats
 
-CHUNK_CELLS = 4_000_000  # matrix cells per bootstrap block, to bound memory
+# matrix cells per bootstrap block, to bound memory. Also fixes how the smoothing noise of
+# the cut intervals is interleaved (a block's top rows, then its bottom rows): changing it
+# changes the cut intervals (within Monte-Carlo error), not the delta intervals.
+CHUNK_CELLS = 4_000_000
 TIE = 1e-12  # resampled statistics this close to the estimate count as equal to it
 
 
@@ -264,18 +271,123 @@ def youden_from_counts(top: np.ndarray, bottom: np.ndarray, values: np.ndarray,
     return values[best], j[best, np.arange(j.shape[1])]
 
 
-def resample_weights(rng: np.random.Generator, n: int, b: int) -> np.ndarray:
-    """Multiplicities of ``n`` lots (rows) in each of ``b`` resamples with replacement."""
-    draws = rng.integers(0, n, size=(b, n), dtype=np.int64)
-    draws += (np.arange(b, dtype=np.int64) * n)[:, None]
-    counts = np.bincount(draws.ravel(), minlength=b * n).reshape(b, n)
+def multiplicities(draws: np.ndarray, n: int) -> np.ndarray:
+    """How often each of ``n`` lots was drawn (resamples x lots, int64) from index draws."""
+    b = draws.shape[0]
+    keys = draws + (np.arange(b, dtype=np.int64) * n)[:, None]
+    return np.bincount(keys.ravel(), minlength=b * n).reshape(b, n)
+
+
+def lots_by_resamples(counts: np.ndarray) -> np.ndarray:
+    """Multiplicities as lots (rows) x resamples (columns), float32 (whole numbers, exact)."""
     return np.ascontiguousarray(counts.T, dtype=np.float32)
+
+
+def resample_weights(rng: np.random.Generator, n: int, b: int) -> np.ndarray:
+    """Multiplicities of ``n`` lots (rows) in each of ``b`` resamples with replacement.
+
+    Holds lots x resamples cells: for small cases and tests; the profile stage draws the
+    same resamples block by block (:func:`count_blocks`).
+    """
+    return lots_by_resamples(multiplicities(rng.integers(0, n, size=(b, n), dtype=np.int64), n))
 
 
 def blocks(b: int, width: int) -> list[slice]:
     """Slices of the resamples so that one block holds at most CHUNK_CELLS cells."""
     step = max(1, CHUNK_CELLS // max(width, 1))
     return [slice(i, min(i + step, b)) for i in range(0, b, step)]
+
+
+def generator_at(state: dict) -> np.random.Generator:
+    """A fresh generator continuing from a saved ``bit_generator.state``."""
+    bit_generator = getattr(np.random, state["bit_generator"])()
+    bit_generator.state = state
+    return np.random.Generator(bit_generator)
+
+
+def count_blocks(state: dict, n: int, parts: Sequence[slice]) -> Iterator[np.ndarray]:
+    """The multiplicities of :func:`resample_weights` drawn from ``state``, block by block.
+
+    numpy's ``Generator.integers`` gives the same stream whether one call draws
+    b x n indices or consecutive calls draw them a block of rows at a time
+    (``tests/test_stats.py`` checks it), so the blocks are the columns of the
+    whole matrix while only one block is held at a time.
+
+    Parameters
+    ----------
+    state : dict
+        The generator's state where the band's draws begin.
+    n : int
+        Lots in the band.
+    parts : sequence of slice
+        Consecutive blocks of the resamples, from 0 (:func:`blocks`).
+
+    Yields
+    ------
+    ndarray
+        Resamples x lots (int64) of each block.
+    """
+    rng = generator_at(state)
+    for part in parts:
+        rows = part.stop - part.start
+        yield multiplicities(rng.integers(0, n, size=(rows, n), dtype=np.int64), n)
+
+
+def skip_draws(rng: np.random.Generator, n: int, b: int) -> None:
+    """Move ``rng`` past the draws of :func:`resample_weights` (``n`` lots, ``b`` resamples)
+    without keeping them, in blocks of bounded size."""
+    for part in blocks(b, n):
+        rng.integers(0, n, size=(part.stop - part.start, n), dtype=np.int64)
+
+
+@dataclass(frozen=True)
+class DeltaPlan:
+    """Cliff's delta of resampled bands from their multiplicities, O(lots) per resample.
+
+    Built once per pair of bands: each bottom lot's position among the bottom's
+    distinct values, and each top lot's positions ``lo`` (bottom values below
+    it) and ``hi`` (at or below it). With C the bottom weight cumulated below
+    each position, a top lot adds (C[lo] + C[hi]) / 2 to U, so
+    2U = sum_m C[m] A[m], A the top weight at each position counted at both its
+    ``lo`` and its ``hi``. Every term is a whole number, so U is exact, and the
+    delta equals :func:`delta_from_counts` to the bit.
+    """
+
+    bottom_map: scipy.sparse.csr_matrix  # distinct bottom values x bottom lots
+    top_map: scipy.sparse.csr_matrix  # (distinct bottom values + 1) x top lots
+    top_missing: np.ndarray  # top lots without a value: each resample draws n1 lots in all
+
+    @classmethod
+    def of(cls, top: np.ndarray, bottom: np.ndarray) -> DeltaPlan:
+        """The plan of every lot of two bands (NaN: no value, no weight)."""
+        top_valid, bottom_valid = np.flatnonzero(np.isfinite(top)), np.flatnonzero(
+            np.isfinite(bottom))
+        values, bottom_pos = np.unique(bottom[bottom_valid], return_inverse=True)
+        k = values.size
+        bottom_map = scipy.sparse.csr_matrix(
+            (np.ones(bottom_valid.size, dtype=np.float32), (bottom_pos.ravel(), bottom_valid)),
+            shape=(k, bottom.size))
+        x = top[top_valid]
+        rows = np.concatenate([np.searchsorted(values, x, side="left"),
+                               np.searchsorted(values, x, side="right")])
+        top_map = scipy.sparse.csr_matrix(  # repeated (row, col) entries are summed
+            (np.ones(rows.size, dtype=np.float32), (rows, np.tile(top_valid, 2))),
+            shape=(k + 1, top.size))
+        return cls(bottom_map, top_map, np.flatnonzero(~np.isfinite(top)))
+
+    def deltas(self, top_weights: np.ndarray, bottom_weights: np.ndarray) -> np.ndarray:
+        """Cliff's delta per resample from multiplicities (lots x resamples, float32)."""
+        below = self.bottom_map @ bottom_weights
+        cum = np.zeros((below.shape[0] + 1, below.shape[1]))
+        np.cumsum(below, axis=0, out=cum[1:])
+        at = self.top_map @ top_weights
+        twice_u = np.einsum("kb,kb->b", cum, at.astype(np.float64))
+        n1 = np.full(at.shape[1], float(top_weights.shape[0]))
+        if self.top_missing.size:
+            n1 -= top_weights[self.top_missing].sum(axis=0, dtype=np.float64)
+        n2 = cum[-1]
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return twice_u / (n1 * n2) - 1.0
 
 
 def quantile_or_nan(x: np.ndarray, q: float) -> float:
@@ -532,6 +644,12 @@ def youden_cuts_of_rows(top: np.ndarray, bottom: np.ndarray, higher_better: bool
     top side being values >= c (values <= c for lower_better); ties in J go to
     the highest cut (the lowest for lower_better).
 
+    Without sorting every row (O(n log n) per resample): the values are counted
+    into bins of a monotone map, which gives J n1 n2 exactly at the lowest value
+    of every bin and a bound on it inside the bin; only the few bins whose bound
+    reaches the best value found are sorted (:func:`_youden_higher`). The cut is
+    the same as the full sort's, ties included.
+
     Parameters
     ----------
     top, bottom : ndarray, shape (rows, n1) and (rows, n2)
@@ -541,42 +659,173 @@ def youden_cuts_of_rows(top: np.ndarray, bottom: np.ndarray, higher_better: bool
     -------
     ndarray, shape (rows,)
     """
-    values = np.concatenate([top, bottom], axis=1)
-    order = np.argsort(values, axis=1)  # NaN sort last
-    v = np.take_along_axis(values, order, axis=1)
-    valid = np.isfinite(v)
-    # J n1 n2 as a running sum over the sorted lots: a whole number, so ties in J are
-    # exact and decided by the rule alone (float32 holds it exactly up to 2^24, and is
-    # faster). Lots without a value sort last, after every candidate, so their steps
-    # never enter a candidate's sum.
-    exact = np.float32 if top.shape[1] * bottom.shape[1] < 2**24 else np.float64
-    n1 = np.isfinite(top).sum(axis=1, keepdims=True).astype(exact)
-    n2 = np.isfinite(bottom).sum(axis=1, keepdims=True).astype(exact)
-    step = np.where(order < top.shape[1], n2, -n1)
+    top, bottom = np.asarray(top, dtype=float), np.asarray(bottom, dtype=float)
     if higher_better:
-        # J at the first lot of each run of equal values: the lots before it are below
-        score = -(np.cumsum(step, axis=1) - step)
-        candidate = np.ones(v.shape, dtype=bool)
-        candidate[:, 1:] = v[:, 1:] != v[:, :-1]
-    else:
-        # J at the last lot of each run: the lots up to it are at or below
-        score = np.cumsum(step, axis=1)
-        candidate = np.ones(v.shape, dtype=bool)
-        candidate[:, :-1] = v[:, 1:] != v[:, :-1]
-    candidate &= valid
-    score = np.where(candidate, score, -np.inf)
-    best = (score >= score.max(axis=1, keepdims=True)) & candidate
-    if higher_better:
-        cut = np.where(best, v, -np.inf).max(axis=1)
-    else:
-        cut = np.where(best, v, np.inf).min(axis=1)
-    return np.where(np.isfinite(cut), cut, np.nan)
+        return _youden_higher(top, bottom)
+    # values <= c with the lowest cut among ties is values >= -c with the highest
+    return -_youden_higher(-top, -bottom)
+
+
+def _bin_keys(x: np.ndarray, low: float, scale: float, bins: int) -> np.ndarray:
+    """Row-major bin keys row * (bins + 1) + bin of each value; NaN in slot ``bins``.
+
+    floor((x - low) scale), clipped to the bins, is non-decreasing in x (each rounded
+    step is), so the bins keep the values' order: every value of a lower bin is below
+    every value of a higher one.
+    """
+    t = np.subtract(x, low)
+    t *= scale
+    np.clip(t, 0, bins - 1, out=t)  # then truncating is flooring
+    missing = np.isnan(t)
+    if missing.any():
+        t[missing] = bins
+    keys = t.astype(np.int64)
+    keys += (np.arange(x.shape[0], dtype=np.int64) * (bins + 1))[:, None]
+    return keys.ravel()
+
+
+def _cumulated_before(counts: np.ndarray) -> np.ndarray:
+    """Per row, the sum of the counts before each column (int64), from one flat cumsum
+    (faster than a cumsum along short rows)."""
+    flat = np.cumsum(counts.ravel())
+    flat -= counts.ravel()
+    flat = flat.reshape(counts.shape)
+    flat -= flat[:, :1]
+    return flat
+
+
+def _values_per_bin(width: int) -> int:
+    """Values per bin of the binned Youden search: few where resampled J is rough (small
+    bands, where wide bins would leave many to sort), more for large bands (measured)."""
+    return 2 if width < 4000 else 4 if width < 16000 else 8
+
+
+def _youden_higher(top: np.ndarray, bottom: np.ndarray) -> np.ndarray:
+    """The higher_better Youden cut of each row (the highest cut among ties in J)."""
+    rows = top.shape[0]
+    out = np.full(rows, np.nan)
+    width = top.shape[1] + bottom.shape[1]
+    if rows == 0 or width == 0:
+        return out
+    n1 = np.isfinite(top).sum(axis=1)
+    n2 = np.isfinite(bottom).sum(axis=1)
+    first = np.concatenate([top[0], bottom[0]])
+    first = first[np.isfinite(first)]
+    if first.size == 0:
+        first = np.concatenate([top[np.isfinite(top)], bottom[np.isfinite(bottom)]])
+    if first.size == 0:
+        return out
+    # bins spread over the bulk of the first row's values
+    low, high = (float(v) for v in np.quantile(first, [0.005, 0.995]))
+    bins = max(1, width // _values_per_bin(width))
+    scale = bins / (high - low) if high > low else 0.0
+    if not np.isfinite(scale):
+        scale = 0.0
+    slots = bins + 1
+    top_keys, bottom_keys = (_bin_keys(top, low, scale, bins),
+                             _bin_keys(bottom, low, scale, bins))
+    count_top = np.bincount(top_keys, minlength=rows * slots).reshape(rows, slots)
+    count_bottom = np.bincount(bottom_keys, minlength=rows * slots).reshape(rows, slots)
+    # J n1 n2 at the lowest value of a bin, from the lots of the bins below it:
+    # n2 (n1 - tops below) - n1 (n2 - bottoms below) = n1 bottoms below - n2 tops below
+    score = (n1[:, None] * _cumulated_before(count_bottom)
+             - n2[:, None] * _cumulated_before(count_top))[:, :bins]
+    count_top, count_bottom = count_top[:, :bins], count_bottom[:, :bins]
+    filled = (count_top + count_bottom) > 0
+    floor = np.where(filled, score, np.iinfo(np.int64).min).max(axis=1)
+    # inside a bin the score rises only past its bottom lots, by n1 each
+    refine = np.zeros((rows, slots), dtype=bool)
+    refine[:, :bins] = filled & (score + n1[:, None] * count_bottom >= floor[:, None])
+    refine = refine.ravel()
+    picked = []
+    for keys, values, is_top in ((top_keys, top, True), (bottom_keys, bottom, False)):
+        at = np.flatnonzero(refine[keys])
+        picked.append((keys[at], values.ravel()[at], np.full(at.size, is_top)))
+    keys = np.concatenate([p[0] for p in picked])
+    values = np.concatenate([p[1] for p in picked])
+    is_top = np.concatenate([p[2] for p in picked])
+    order = np.lexsort((values, keys))  # by bin, then value: by row, then value
+    keys, values, is_top = keys[order], values[order], is_top[order]
+    row = keys // slots
+    index = np.arange(keys.size)
+    new_bin = np.ones(keys.size, dtype=bool)
+    new_bin[1:] = keys[1:] != keys[:-1]
+    new_run = new_bin.copy()
+    new_run[1:] |= values[1:] != values[:-1]
+    bin_start = np.maximum.accumulate(np.where(new_bin, index, 0))
+    run_start = np.maximum.accumulate(np.where(new_run, index, 0))
+    tops_before = np.cumsum(is_top) - is_top
+    bottoms_before = index - tops_before
+    # the lots of the bin below this value leave the top side
+    below_top = tops_before[run_start] - tops_before[bin_start]
+    below_bottom = bottoms_before[run_start] - bottoms_before[bin_start]
+    exact = (score.ravel()[row * bins + keys % slots] - n2[row] * below_top
+             + n1[row] * below_bottom)
+    new_row = np.ones(keys.size, dtype=bool)
+    new_row[1:] = row[1:] != row[:-1]
+    starts = np.flatnonzero(new_row)
+    best = np.maximum.reduceat(exact, starts)
+    ties = exact == np.repeat(best, np.diff(np.append(starts, keys.size)))
+    out[row[starts]] = np.maximum.reduceat(np.where(ties, values, -np.inf), starts)
+    return out
 
 
 def keyed_rng(seed: int, *keys: str) -> np.random.Generator:
     """A generator seeded from ``seed`` and text keys: the same stream for the same keys,
     whatever else a run draws or in which order."""
     return np.random.default_rng([int(seed), *(zlib.crc32(k.encode("utf-8")) for k in keys)])
+
+
+@dataclass(frozen=True)
+class Smoothing:
+    """One band's values with the centre, spread and bandwidth of its smoothing."""
+
+    values: np.ndarray
+    centre: float
+    spread: float
+    bandwidth: float | np.ndarray
+
+    @classmethod
+    def of(cls, values: np.ndarray) -> Smoothing:
+        """The band's mean, SD (ddof 0, the resampling distribution's own, which the
+        shrinking keeps) and Silverman bandwidth over its lots with a value."""
+        ok = values[np.isfinite(values)]
+        return cls(values, float(ok.mean()) if ok.size else 0.0,
+                   float(ok.std()) if ok.size else 0.0, silverman_bandwidth(ok))
+
+    def draw(self, index: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+        """The smoothed values of resamples given as lot indices (resamples x lots, each
+        row in lot order, as :func:`expand_weights` gives them): :func:`smoothed_values`,
+        computed in place in the same order of operations, so to the same bits."""
+        drawn = self.values[index]
+        noise = rng.standard_normal(drawn.shape)
+        spread = np.asarray(self.spread, dtype=float)
+        bandwidth = np.asarray(self.bandwidth, dtype=float)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            shrink = np.where(spread > 0, 1.0 / np.sqrt(1.0 + (bandwidth / spread) ** 2), 1.0)
+        drawn -= self.centre
+        noise *= bandwidth
+        drawn += noise
+        drawn *= shrink
+        drawn += self.centre
+        return drawn
+
+
+def expand_counts(counts: np.ndarray) -> np.ndarray:
+    """Lot indices of each resample (rows) from multiplicities (resamples x lots): a lot
+    drawn k times appears k times, in lot order (:func:`expand_weights` transposed)."""
+    rows, n = counts.shape
+    return np.repeat(np.tile(np.arange(n, dtype=np.intp), rows), counts.ravel()).reshape(rows, n)
+
+
+def smoothed_block_cuts(top: Smoothing, bottom: Smoothing, top_index: np.ndarray,
+                        bottom_index: np.ndarray, higher_better: bool,
+                        rng: np.random.Generator) -> np.ndarray:
+    """The Youden cuts of one block of shrunk smoothed resamples, given as lot indices
+    (:func:`expand_counts`; see :func:`smoothed_youden_cuts`); the noise of the top band's
+    rows is drawn first."""
+    rows = top.draw(top_index, rng), bottom.draw(bottom_index, rng)
+    return youden_cuts_of_rows(rows[0], rows[1], higher_better)
 
 
 def smoothed_youden_cuts(top: np.ndarray, bottom: np.ndarray, top_weights: np.ndarray,
@@ -587,6 +836,9 @@ def smoothed_youden_cuts(top: np.ndarray, bottom: np.ndarray, top_weights: np.nd
     The resamples are the bands' multiplicities (shared with the delta
     interval); each drawn value is then smoothed (:func:`smoothed_values`, the
     bandwidth by :func:`silverman_bandwidth` per band) before the cut is taken.
+    The noise is drawn block by block (:func:`blocks` over both bands' lots),
+    the top band's rows of a block before the bottom band's, so the profile
+    stage can draw the same from multiplicities generated block by block.
 
     Parameters
     ----------
@@ -604,20 +856,11 @@ def smoothed_youden_cuts(top: np.ndarray, bottom: np.ndarray, top_weights: np.nd
         One cut per resample.
     """
     b = top_weights.shape[1]
-    bands = []
-    for values in (top, bottom):
-        ok = values[np.isfinite(values)]
-        # the SD of the resampling distribution itself (ddof 0), which the shrinking keeps
-        bands.append((values, float(ok.mean()) if ok.size else 0.0,
-                      float(ok.std()) if ok.size else 0.0, silverman_bandwidth(ok)))
+    bands = Smoothing.of(top), Smoothing.of(bottom)
     out = np.empty(b)
     for block in blocks(b, top.size + bottom.size):
-        rows = []
-        for (values, centre, spread, width), weights in zip(bands, (top_weights, bottom_weights)):
-            drawn = values[expand_weights(weights[:, block])]
-            rows.append(smoothed_values(drawn, centre, spread, width,
-                                        rng.standard_normal(drawn.shape)))
-        out[block] = youden_cuts_of_rows(rows[0], rows[1], higher_better)
+        index = [expand_weights(w[:, block]) for w in (top_weights, bottom_weights)]
+        out[block] = smoothed_block_cuts(*bands, *index, higher_better, rng)
     return out
 
 

@@ -46,7 +46,7 @@ def group_thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np
     observed : dict
         Analyte -> values of every lot (NaN where imputed or missing).
     resamples : Resamples
-        The style's bands and their bootstrap multiplicities.
+        The style's bands and where their bootstrap draws begin.
     settings : ProfileSettings
         Bootstrap size, CI level, target quantiles, minimum band size.
     intervals : bool
@@ -57,7 +57,7 @@ def group_thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np
     list of dict
         One row per analyte, the columns of :data:`THRESHOLD_COLUMNS`.
     """
-    out = []
+    out, smoothed = [], []
     for row in drivers.itertuples():
         values = observed[row.analyte]
         xt, xb = values[resamples.top_rows], values[resamples.bottom_rows]
@@ -66,11 +66,38 @@ def group_thresholds(group: Group, drivers: pd.DataFrame, observed: dict[str, np
                 **_target_window(xt, settings), "top_beyond_cut": np.nan,
                 "bottom_beyond_cut": np.nan}
         if row.is_driver:
-            # the smoothing noise is keyed by style and analyte: a cut's interval does not
-            # move when another analyte or style is added or left out
-            noise = stats.keyed_rng(settings.seed, "cut", group.style, row.analyte)
-            item.update(_cut(xt, xb, row.cliffs_delta, resamples, settings, intervals, noise))
+            item.update(_cut(xt, xb, row.cliffs_delta))
+            if intervals:
+                # the smoothing noise is keyed by style and analyte: a cut's interval does not
+                # move when another analyte or style is added or left out
+                noise = stats.keyed_rng(settings.seed, "cut", group.style, row.analyte)
+                smoothed.append((item, xt, xb, noise))
         out.append(item)
+    for (item, xt, xb, _), cuts in zip(smoothed, _smoothed_cuts(smoothed, resamples)):
+        item["cut_ci_low"], item["cut_ci_high"] = stats.cut_interval(
+            xt, xb, item["cut"], cuts, settings.ci_level)
+    return out
+
+
+def _smoothed_cuts(drivers: list[tuple[dict, np.ndarray, np.ndarray, np.random.Generator]],
+                   resamples: Resamples) -> list[np.ndarray]:
+    """Each driver's shrunk smoothed-bootstrap cuts
+    (:func:`~vinstrata.profile.stats.smoothed_youden_cuts`), in one pass over the style's
+    resamples, a block at a time, for every driver at once.
+
+    The plain bootstrap of an argmax such as the Youden cut covers too rarely in small
+    bands, hence the smoothing.
+    """
+    out = [np.empty(resamples.bootstrap) for _ in drivers]
+    if not drivers:
+        return out
+    bands = [(stats.Smoothing.of(xt), stats.Smoothing.of(xb)) for _, xt, xb, _ in drivers]
+    for part, top, bottom in resamples.blocks():
+        # the lots each resample drew, shared by every driver of the style
+        top, bottom = stats.expand_counts(top), stats.expand_counts(bottom)
+        for cuts, (item, _, _, noise), (top_band, bottom_band) in zip(out, drivers, bands):
+            cuts[part] = stats.smoothed_block_cuts(top_band, bottom_band, top, bottom,
+                                                   item["direction"] == "higher_better", noise)
     return out
 
 
@@ -83,33 +110,20 @@ def _target_window(xt: np.ndarray, settings: ProfileSettings) -> dict[str, float
             "target_high": stats.quantile_or_nan(top, hi_q) if enough_top else np.nan}
 
 
-def _cut(xt: np.ndarray, xb: np.ndarray, delta: float, resamples: Resamples,
-         settings: ProfileSettings, intervals: bool, noise: np.random.Generator
-         ) -> dict[str, float | str]:
-    """A driver's Youden cut, its direction, J, AUC and (with ``intervals``) its CI.
-
-    The CI comes from the shrunk smoothed bootstrap of the two bands
-    (:func:`~vinstrata.profile.stats.smoothed_youden_cuts`, the style's resamples
-    with the values smoothed by ``noise``): the plain bootstrap of an argmax
-    such as the Youden cut covers too rarely in small bands.
-    """
+def _cut(xt: np.ndarray, xb: np.ndarray, delta: float) -> dict[str, float | str]:
+    """A driver's Youden cut, its direction, J, AUC and the bands' shares beyond it."""
     higher = delta > 0
     sorted_ = stats.Sorted.of(xt, xb)
     ones_t = np.ones((xt.size, 1), dtype=np.float32)
     ones_b = np.ones((xb.size, 1), dtype=np.float32)
     cut, j = stats.youden_from_counts(sorted_.counts(ones_t, "top"),
                                       sorted_.counts(ones_b, "bottom"), sorted_.values, higher)
-    ci_low = ci_high = np.nan
-    if intervals:
-        cuts = stats.smoothed_youden_cuts(xt, xb, resamples.top, resamples.bottom, higher, noise)
-        ci_low, ci_high = stats.cut_interval(xt, xb, float(cut[0]), cuts, settings.ci_level)
     auc = (delta + 1) / 2
     top, bottom = xt[np.isfinite(xt)], xb[np.isfinite(xb)]
     beyond = (lambda x: x >= cut[0]) if higher else (lambda x: x <= cut[0])
     return {
         "direction": "higher_better" if higher else "lower_better",
         "cut": float(cut[0]), "youden_j": float(j[0]),
-        "cut_ci_low": ci_low, "cut_ci_high": ci_high,
         "auc": float(auc if higher else 1 - auc),
         "top_beyond_cut": float(np.mean(beyond(top))),
         "bottom_beyond_cut": float(np.mean(beyond(bottom))),
