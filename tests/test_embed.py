@@ -62,3 +62,23 @@ def test_new_points_land_among_their_neighbours(blobs):
     centres = np.array([coords[labels == k].mean(axis=0) for k in range(4)])
     nearest_centre = np.argmin(((placed[:, None, :] - centres[None]) ** 2).sum(-1), axis=1)
     assert (nearest_centre == labels[:20]).mean() >= 0.95
+
+
+@pytest.mark.parametrize("dims, lots", [(5, 3_000), (13, 3_000), (13, 61_000)])
+def test_neighbour_index_finds_the_exact_neighbours(dims, lots):
+    # reference: scipy's cKDTree, an independent exact search
+    from scipy.spatial import cKDTree
+
+    rng = np.random.default_rng(dims + lots)
+    reference = rng.normal(size=(lots, dims))
+    points = rng.normal(size=(400, dims))
+    index = embed.NeighbourIndex(reference)
+    expected = "kd_tree" if dims <= embed.TREE_UP_TO_DIMENSIONS or lots > embed.TREE_FROM_LOTS \
+        else "brute"
+    assert index.method == expected
+    found = index.query(points, 7)
+    dist, idx = cKDTree(reference).query(points, k=7)
+    assert np.array_equal(found.indices, idx)
+    assert np.allclose(found.distances, dist, atol=1e-9)
+    # asking for more neighbours than there are lots gives them all
+    assert embed.NeighbourIndex(reference[:4]).query(points, 7).indices.shape == (400, 4)

@@ -120,3 +120,16 @@ def test_analytes_are_found_in_a_decimal_comma_table():
                            {"lot": "B", "alcohol": "13,0", "ph": "3,45"}]), config)
     assert table.analytes == ("alcohol", "ph")
     assert table.values["ph"].tolist() == [3.31, 3.45]
+
+
+def test_imputing_against_complete_reference_lots_equals_scikit_learns_knn_imputer():
+    # reference: scikit-learn's KNNImputer (nan_euclidean distances, uniform weights)
+    from sklearn.impute import KNNImputer
+
+    rng = np.random.default_rng(12)
+    reference = rng.normal(size=(3_000, 9))
+    lots = rng.normal(size=(2_000, 9))
+    lots[rng.random(lots.shape) < 0.03] = np.nan
+    lots[7] = np.nan  # a lot with nothing measured gets the reference's means
+    expected = KNNImputer(n_neighbors=5, keep_empty_features=True).fit(reference).transform(lots)
+    assert np.allclose(impute(lots, reference, 5), expected, rtol=0, atol=1e-12)

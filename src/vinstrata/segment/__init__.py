@@ -10,6 +10,9 @@ Modules, in the order the stage runs::
     names       Style names: generated from their chemistry, or given by their users.
     styles      The style table: sizes, medians, names and the trust verdict of each style.
     assign      Assigning lots to styles: HDBSCAN's prediction, soft membership, typicality.
+    membership  HDBSCAN's prediction and soft membership of new lots, many at once.
+    reference   The fitted lots that other lots are placed among, built once per model.
+    sample      The fitted sample of a large range: seeded, stratified by chemistry.
     fit         Segmenting a range into styles from its chemistry alone.
     model       The style model: what segmentation learns, saved as plain data.
     outputs     The contract tables of the segment stage: lot_styles.csv and styles.csv.
@@ -27,6 +30,7 @@ _NAMES = {
     "censored_at_limit": "vinstrata.segment.transform",
     "scale_chemistry": "vinstrata.segment.transform",
     "Neighbours": "vinstrata.segment.embed",
+    "NeighbourIndex": "vinstrata.segment.embed",
     "nearest": "vinstrata.segment.embed",
     "smooth_knn_dist": "vinstrata.segment.embed",
     "memberships": "vinstrata.segment.embed",
@@ -77,9 +81,19 @@ _NAMES = {
     "training_prediction": "vinstrata.segment.assign",
     "rebuild_clusterer": "vinstrata.segment.assign",
     "style_shapes": "vinstrata.segment.assign",
-    "soft_memberships": "vinstrata.segment.assign",
+    "SoftTables": "vinstrata.segment.membership",
+    "soft_tables": "vinstrata.segment.membership",
+    "soft_membership": "vinstrata.segment.membership",
+    "predict_clusters": "vinstrata.segment.membership",
+    "Predictor": "vinstrata.segment.assign",
+    "fit_predictor": "vinstrata.segment.assign",
+    "model_predictor": "vinstrata.segment.assign",
     "predict_styles": "vinstrata.segment.assign",
     "place_in_styles": "vinstrata.segment.assign",
+    "Located": "vinstrata.segment.reference",
+    "FitReference": "vinstrata.segment.reference",
+    "fit_reference": "vinstrata.segment.reference",
+    "model_reference": "vinstrata.segment.reference",
     "fit_styles": "vinstrata.segment.fit",
     "FORMAT_VERSION": "vinstrata.segment.model",
     "SegmentParams": "vinstrata.segment.model",

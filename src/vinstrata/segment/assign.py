@@ -24,6 +24,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from vinstrata.errors import InputError
+from vinstrata.segment.membership import (
+    SoftTables,
+    predict_clusters,
+    soft_membership,
+    soft_tables,
+)
 from vinstrata.segment.model import StyleModel
 from vinstrata.segment.sweep import fit_hdbscan
 from vinstrata.segment.typicality import StyleShape
@@ -174,12 +180,8 @@ def label_order(clusterer: object, space: np.ndarray) -> np.ndarray:
     -------
     ndarray of int, one entry per prediction cluster
     """
-    import hdbscan
-
     labels = np.asarray(clusterer.labels_)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        predicted, _ = hdbscan.approximate_predict(clusterer, space)
+    predicted, _ = predict_clusters(soft_tables(clusterer), space)  # approximate_predict
     n_predicted = len(clusterer.prediction_data_.exemplars)
     order = np.full(n_predicted, -1, dtype=int)
     for p in range(n_predicted):
@@ -279,8 +281,93 @@ def training_prediction(clusterer: object, space: np.ndarray, groups: np.ndarray
 # --------------------------------------------------------------------------- new lots
 
 
+@dataclass(frozen=True)
+class Predictor:
+    """HDBSCAN's prediction for lots it was not fitted on, built once per model.
+
+    Fitting (for the lots outside the fitted sample) and placing (for new lots)
+    both assign through :meth:`assign`, so a lot is treated the same whichever
+    way it arrives.
+
+    Attributes
+    ----------
+    clusterer : hdbscan.HDBSCAN or None
+        Fitted on the fitted lots' clustering coordinates, with prediction
+        data; None for a one-style model.
+    style_of_cluster : tuple of int
+        The style of each prediction cluster (hdbscan's own numbering,
+        :func:`label_order`), -1 for a dissolved cluster.
+    shapes : tuple of StyleShape
+        Each style's typicality shape, in style order.
+    cutoff : float
+        Outlier score above which a lot fits no style.
+    tables : SoftTables or None
+        The clusterer's soft-membership tables (:mod:`vinstrata.segment.membership`).
+    """
+
+    clusterer: object | None
+    style_of_cluster: tuple[int, ...]
+    shapes: tuple[StyleShape, ...]
+    cutoff: float
+    tables: SoftTables | None = None
+
+    @property
+    def n_styles(self) -> int:
+        return len(self.shapes)
+
+    def soft(self, points: np.ndarray) -> np.ndarray:
+        """Soft membership of lots at ``points`` to every style (rows sum to 1)."""
+        if self.clusterer is None or not len(points):
+            return np.full((len(points), self.n_styles), 1.0 / max(self.n_styles, 1))
+        tables = self.tables or soft_tables(self.clusterer)
+        vectors = soft_membership(tables, points)  # hdbscan.membership_vector, vectorised
+        soft = _sum_by_style(vectors.reshape(len(points), -1), self.style_of_cluster,
+                             self.n_styles)
+        return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)
+
+    def predict(self, space: np.ndarray) -> Prediction:
+        """HDBSCAN's approximate prediction for lots at ``space``, in style order."""
+        n = len(space)
+        if self.clusterer is None:
+            return Prediction(np.zeros(n, dtype=int), np.ones(n),
+                              lambda rows: self.soft(space[rows]))
+        # hdbscan.approximate_predict, vectorised
+        clusters, strength = predict_clusters(self.tables or soft_tables(self.clusterer), space)
+        styles = np.asarray((*self.style_of_cluster, -1), dtype=int)
+        return Prediction(styles[np.asarray(clusters, dtype=int)],
+                          np.asarray(strength, dtype=float).copy(),
+                          lambda rows: self.soft(space[rows]))
+
+    def assign(self, space: np.ndarray, scaled: np.ndarray) -> Assignment:
+        """Lots at ``space`` (with scaled chemistry ``scaled``) assigned to the styles."""
+        return assign_lots(self.predict(space), self.shapes, scaled, self.cutoff)
+
+
+def fit_predictor(clusterer: object | None, space: np.ndarray,
+                  style_of_cluster: Sequence[int], shapes: Sequence[StyleShape],
+                  cutoff: float) -> Predictor:
+    """A :class:`Predictor` from a fitted clusterer and the style of each of its fit clusters.
+
+    Parameters
+    ----------
+    clusterer : hdbscan.HDBSCAN or None
+        Fitted on ``space`` with prediction data; None for one style.
+    space : ndarray
+        The clustering coordinates it was fitted on.
+    style_of_cluster : sequence of int
+        The style of each fit cluster (``labels_`` numbering), -1 for none.
+    shapes : sequence of StyleShape
+    cutoff : float
+    """
+    order = (_in_fit_order(style_of_cluster, label_order(clusterer, space))
+             if clusterer is not None else [])
+    return Predictor(clusterer=clusterer, style_of_cluster=tuple(order), shapes=tuple(shapes),
+                     cutoff=float(cutoff),
+                     tables=soft_tables(clusterer) if clusterer is not None else None)
+
+
 def rebuild_clusterer(model: StyleModel) -> object:
-    """Refit HDBSCAN on the stored clustering coordinates, with prediction data.
+    """Refit HDBSCAN on the stored clustering coordinates of the fitted lots.
 
     Raises
     ------
@@ -289,9 +376,10 @@ def rebuild_clusterer(model: StyleModel) -> object:
         were changed, or another hdbscan version clusters differently).
     """
     params = model.params
-    clusterer = fit_hdbscan(model.space, params.min_cluster_size, params.min_samples,
+    fitted = model.in_fit
+    clusterer = fit_hdbscan(model.space[fitted], params.min_cluster_size, params.min_samples,
                             prediction_data=True)
-    if not np.array_equal(np.asarray(clusterer.labels_), model.clusters):
+    if not np.array_equal(np.asarray(clusterer.labels_), model.clusters[fitted]):
         raise InputError("model: the rebuilt HDBSCAN labels differ from the stored ones "
                          "(model files changed or another hdbscan version); segment again")
     return clusterer
@@ -307,40 +395,19 @@ def _style_of_cluster(model: StyleModel) -> list[int]:
     return [position.get(sid, -1) for sid in model.params.cluster_styles]
 
 
-def soft_memberships(model: StyleModel, clusterer: object | None, points: np.ndarray,
-                     style_of_cluster: Sequence[int] = ()) -> np.ndarray:
-    """Soft membership of new lots to every style (rows sum to 1), as segmentation gives it.
-
-    Parameters
-    ----------
-    model : StyleModel
-    clusterer : hdbscan.HDBSCAN or None
-        The rebuilt clusterer; None for a one-style model (equal shares).
-    points : ndarray
-        The lots' clustering-space coordinates.
-    style_of_cluster : sequence of int
-        The style of each prediction cluster (:func:`label_order`); worked out here
-        when not given.
-
-    Returns
-    -------
-    ndarray, shape (n_points, n_styles)
-    """
-    n_styles = len(model.style_ids)
-    if clusterer is None or not len(points):
-        return np.full((len(points), n_styles), 1.0 / n_styles)
-    import hdbscan
-
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        vectors = np.asarray(hdbscan.membership_vector(clusterer, points), dtype=float)
-    styles = list(style_of_cluster) or _in_fit_order(_style_of_cluster(model),
-                                                     label_order(clusterer, model.space))
-    soft = _sum_by_style(vectors.reshape(len(points), -1), styles, n_styles)
-    return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)
+def model_predictor(model: StyleModel) -> Predictor:
+    """The :class:`Predictor` of a stored model (HDBSCAN rebuilt once, deterministically)."""
+    shapes = style_shapes(model)
+    ordered = [shapes[sid] for sid in model.style_ids]
+    cutoff = float(model.outliers["cutoff"])
+    if model.params.one_style:
+        return Predictor(None, (), tuple(ordered), cutoff)
+    return fit_predictor(rebuild_clusterer(model), model.space[model.in_fit],
+                         _style_of_cluster(model), ordered, cutoff)
 
 
-def predict_styles(model: StyleModel, space: np.ndarray) -> Prediction:
+def predict_styles(model: StyleModel, space: np.ndarray,
+                   predictor: Predictor | None = None) -> Prediction:
     """HDBSCAN's approximate prediction for new lots at ``space`` against the stored model.
 
     Parameters
@@ -348,30 +415,19 @@ def predict_styles(model: StyleModel, space: np.ndarray) -> Prediction:
     model : StyleModel
     space : ndarray
         The new lots' clustering-space coordinates.
+    predictor : Predictor, optional
+        The model's predictor when already built (:func:`model_predictor`).
 
     Returns
     -------
     Prediction
         In the model's style order; soft membership from the rebuilt clusterer.
     """
-    n = len(space)
-    if model.params.one_style:
-        return Prediction(np.zeros(n, dtype=int), np.ones(n),
-                          lambda rows: soft_memberships(model, None, space[rows]))
-    import hdbscan
-
-    clusterer = rebuild_clusterer(model)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        clusters, strength = hdbscan.approximate_predict(clusterer, space)
-    style_of_cluster = _in_fit_order(_style_of_cluster(model), label_order(clusterer, model.space))
-    style_index = np.array([style_of_cluster[c] if c >= 0 else -1 for c in clusters], dtype=int)
-    return Prediction(style_index, np.asarray(strength, dtype=float).copy(),
-                      lambda rows: soft_memberships(model, clusterer, space[rows],
-                                                    style_of_cluster))
+    return (predictor or model_predictor(model)).predict(space)
 
 
-def place_in_styles(model: StyleModel, space: np.ndarray, scaled: np.ndarray) -> Assignment:
+def place_in_styles(model: StyleModel, space: np.ndarray, scaled: np.ndarray,
+                    predictor: Predictor | None = None) -> Assignment:
     """New lots assigned to the model's styles, the way its training lots were.
 
     Parameters
@@ -381,11 +437,11 @@ def place_in_styles(model: StyleModel, space: np.ndarray, scaled: np.ndarray) ->
         The new lots' clustering-space coordinates.
     scaled : ndarray
         Their scaled chemistry.
+    predictor : Predictor, optional
+        The model's predictor when already built (:func:`model_predictor`).
 
     Returns
     -------
     Assignment
     """
-    shapes = style_shapes(model)
-    return assign_lots(predict_styles(model, space), [shapes[sid] for sid in model.style_ids],
-                       scaled, float(model.outliers["cutoff"]))
+    return (predictor or model_predictor(model)).assign(space, scaled)

@@ -46,28 +46,77 @@ class Neighbours:
     distances: np.ndarray
 
 
+TREE_FROM_LOTS = 60_000  # a k-d tree above this many reference lots, whatever the dimension
+TREE_UP_TO_DIMENSIONS = 8  # and at any size up to this many dimensions
+
+
+class NeighbourIndex:
+    """Exact nearest neighbours among fixed reference lots, built once and queried in batches.
+
+    A k-d tree (scikit-learn) answers a query in about O(log m) distance
+    evaluations for m reference lots in a few dimensions; a brute search costs
+    O(m) but runs as matrix products. Measured on the demo chemistry (2 cores,
+    15 neighbours): in the 8-D clustering space the tree took 0.67 s against
+    2.9 s for 20,000 queries among 50,000 lots; in 13 scaled analytes brute
+    force won at 20,000 lots (0.04 against 0.10 ms a query). So the tree is
+    used up to :data:`TREE_UP_TO_DIMENSIONS` dimensions and above
+    :data:`TREE_FROM_LOTS` lots, where brute force would grow with the model.
+    Both are exact; the index is rebuilt from the stored coordinates
+    (deterministic), never saved.
+
+    Parameters
+    ----------
+    reference : ndarray, shape (m, d)
+        The reference lots' coordinates.
+    """
+
+    def __init__(self, reference: np.ndarray) -> None:
+        reference = np.asarray(reference)
+        self.size = int(len(reference))
+        dims = reference.shape[1] if reference.ndim == 2 else 1
+        self.method = ("kd_tree" if self.size > TREE_FROM_LOTS or dims <= TREE_UP_TO_DIMENSIONS
+                       else "brute")
+        self._search = (NearestNeighbors(algorithm=self.method).fit(reference)
+                        if self.size else None)
+
+    def query(self, points: np.ndarray, k: int) -> Neighbours:
+        """The ``k`` nearest reference lots of each point, nearest first.
+
+        ``k`` is capped at the number of reference lots.
+        """
+        k = min(int(k), self.size)
+        if self._search is None or not len(points) or k == 0:
+            return Neighbours(indices=np.zeros((len(points), k), dtype=np.int64),
+                              distances=np.zeros((len(points), k)))
+        dist, idx = self._search.kneighbors(points, n_neighbors=k)
+        return Neighbours(indices=idx, distances=dist)
+
+
 def nearest(reference: np.ndarray, k: int, query: np.ndarray | None = None) -> Neighbours:
     """Exact k nearest neighbours (Euclidean) of ``query`` among ``reference``.
 
     With ``query`` None the reference lots themselves are queried, and each
-    lot is its own first neighbour, as umap-learn expects.
+    lot is its own first neighbour, as umap-learn expects (a brute search,
+    which beats a tree for the fitting graph). New lots are searched through
+    a :class:`NeighbourIndex`.
     """
+    if query is not None:
+        return NeighbourIndex(reference).query(query, k)
     k = min(k, len(reference))
     # brute force: matrix products in chunks beat the trees in ten or so dimensions
     # (measured: 28 s against 95 s for 100,000 lots, 10x for 6,000)
     search = NearestNeighbors(n_neighbors=k, algorithm="brute").fit(reference)
-    dist, idx = search.kneighbors(reference if query is None else query)
-    if query is None:
-        # a duplicate lot may come before the lot itself; put the lot first
-        own = np.arange(len(reference))
-        first_is_self = idx[:, 0] == own
-        for i in np.flatnonzero(~first_is_self):
-            where = np.flatnonzero(idx[i] == i)
-            j = int(where[0]) if where.size else k - 1
-            idx[i, 1 : j + 1] = idx[i, :j]
-            dist[i, 1 : j + 1] = dist[i, :j]
-            idx[i, 0], dist[i, 0] = i, 0.0
-        dist[:, 0] = 0.0  # the distance products can leave a tiny non-zero self distance
+    dist, idx = search.kneighbors(reference)
+    # a duplicate lot may come before the lot itself; put the lot first
+    own = np.arange(len(reference))
+    first_is_self = idx[:, 0] == own
+    for i in np.flatnonzero(~first_is_self):
+        where = np.flatnonzero(idx[i] == i)
+        j = int(where[0]) if where.size else k - 1
+        idx[i, 1 : j + 1] = idx[i, :j]
+        dist[i, 1 : j + 1] = dist[i, :j]
+        idx[i, 0], dist[i, 0] = i, 0.0
+    dist[:, 0] = 0.0  # the distance products can leave a tiny non-zero self distance
     return Neighbours(indices=idx, distances=dist)
 
 

@@ -4,6 +4,12 @@ Fitting the styles of a range: :func:`fit_styles` runs the stage end to end on a
 validated lot table:
 
 1. transform and robust scaling (:mod:`vinstrata.segment.transform`), missing cells imputed;
+   a range of more than ``segment.fit_sample`` lots is fitted on a seeded sample
+   stratified by chemistry (:mod:`vinstrata.segment.sample`), steps 2-5 run on the
+   sample, and every other lot is then assigned the way ``vinstrata place`` places a
+   new lot (:mod:`vinstrata.segment.reference`): the same position, style, soft
+   membership and typicality; it counts in the styles' sizes and profiles like any
+   other training lot;
 2. the clustering space: UMAP of the scaled chemistry (:mod:`vinstrata.segment.embed`),
    or the scaled chemistry itself with ``segment.space = "chemistry"``;
 3. HDBSCAN (the hdbscan package) in that space;
@@ -63,8 +69,17 @@ from vinstrata.read.hints import rejection_hints
 from vinstrata.read.ingest import Source
 from vinstrata.read.lots import UNASSIGNED, LotTable
 from vinstrata.segment import embed
-from vinstrata.segment.assign import Assignment, assign_lots, score_lots, training_prediction
+from vinstrata.segment.assign import (
+    Assignment,
+    Predictor,
+    assign_lots,
+    fit_predictor,
+    score_lots,
+    training_prediction,
+)
 from vinstrata.segment.model import SegmentParams, StyleModel, software_versions
+from vinstrata.segment.reference import fit_reference
+from vinstrata.segment.sample import stratified_sample
 from vinstrata.segment.styles import describe_styles, quantile_hints, style_band_counts
 from vinstrata.segment.sweep import (
     Clustering,
@@ -110,24 +125,36 @@ def fit_styles(table: LotTable, config: Config, reporter: Reporter | None = None
     rep = reporter or Reporter()
     seg = config.segment
     lots = _used_lots(table)
-    scaler, scaled = _scale_lots(lots, config, rep)
-    embedding = _embed_lots(scaled, seg.space, seg.components, seg.neighbours, seg.epochs,
+    scaler = _fit_transform(lots, config, rep)
+    fitted = _fitted_rows(lots, scaler, config, rep)
+    sample = lots.take(fitted)
+    scaled_fit = scale_chemistry(sample.values, sample.flags, scaler, config)
+    embedding = _embed_lots(scaled_fit, seg.space, seg.components, seg.neighbours, seg.epochs,
                             seg.map_min_dist, int(config.seed))
-    results, fitted = _sweep_clusters(embedding.space, scaled, seg.min_cluster_size,
-                                      seg.min_samples, seg.sweep, seg.merge_valley, rep)
+    results, clusterers = _sweep_clusters(embedding.space, scaled_fit, seg.min_cluster_size,
+                                          seg.min_samples, seg.sweep, seg.merge_valley, rep)
     final = choose_size(results)
-    grouped, soft, shapes = _assign_groups(embedding.space, scaled, final, fitted,
+    clusterer = _final_clusterer(embedding.space, final, clusterers)
+    grouped, soft, shapes = _assign_groups(embedding.space, scaled_fit, final, clusterer,
                                            seg.outlier_cutoff)
-    styles = _order_styles(grouped, soft, shapes, scaled)
-    style_frame, stats = _describe(lots, table, scaled, scaler.analytes, styles, config)
+    whole = _FitLots(scaled=scaled_fit, space=embedding.space, map2d=embedding.map2d,
+                     clusters=final.clusters, assignment=grouped, soft=soft,
+                     in_fit=np.ones(len(fitted), dtype=bool))
+    if len(fitted) < len(lots.ids):
+        whole = _with_others(whole, lots, fitted, scaler, config, embedding,
+                             _group_predictor(embedding.space, final, clusterer, shapes,
+                                              seg.outlier_cutoff), rep)
+    styles = _order_styles(whole.assignment, whole.soft, shapes, whole.scaled)
+    style_frame, stats = _describe(lots, table, whole.scaled, scaler.analytes, styles, config)
     _report_styles(style_frame, rep)
     return StyleModel(
         config=config, source=table.source, specs=table.specs, scaler=scaler,
-        rows=_row_status(table), lots=_lot_frame(lots.ids, styles, final, embedding.map2d),
+        rows=_row_status(table),
+        lots=_lot_frame(lots.ids, styles, whole.clusters, whole.map2d, whole.in_fit),
         values=lots.values, flags=lots.flags.astype(str), extra=table.extra.astype(str),
-        scaled=scaled, space=np.asarray(embedding.space, dtype=np.float32),
-        map2d=np.asarray(embedding.map2d, dtype=np.float32),
-        clusters=final.clusters.astype(np.int64),
+        scaled=whole.scaled, space=np.asarray(whole.space, dtype=np.float32),
+        map2d=np.asarray(whole.map2d, dtype=np.float32),
+        clusters=whole.clusters.astype(np.int64),
         memberships=styles.soft.astype(np.float64), styles=style_frame, style_stats=stats,
         sweep=sweep_table(results, final),
         params=_segment_params(config, embedding, final, styles),
@@ -152,6 +179,14 @@ class _TrainingLots:
     def grades(self) -> np.ndarray:
         return self.ids["grade"].to_numpy(dtype=float)
 
+    def take(self, rows: np.ndarray) -> _TrainingLots:
+        """The lots at ``rows`` (all of them, unchanged, when ``rows`` covers every lot)."""
+        if len(rows) == len(self.ids):
+            return self
+        return _TrainingLots(values=self.values.iloc[rows].reset_index(drop=True),
+                             flags=self.flags.iloc[rows].reset_index(drop=True),
+                             ids=self.ids.iloc[rows].reset_index(drop=True), source=self.source)
+
 
 def _used_lots(table: LotTable) -> _TrainingLots:
     """The used lots of ``table``; refuses a table with fewer than :data:`MIN_LOTS` of them."""
@@ -167,9 +202,8 @@ def _used_lots(table: LotTable) -> _TrainingLots:
                         ids=table.ids.loc[used].reset_index(drop=True), source=table.source)
 
 
-def _scale_lots(lots: _TrainingLots, config: Config, rep: Reporter
-                ) -> tuple[ChemistryScaler, np.ndarray]:
-    """Fit the transform and robust scaling on the lots, and their scaled, imputed chemistry."""
+def _fit_transform(lots: _TrainingLots, config: Config, rep: Reporter) -> ChemistryScaler:
+    """The per-analyte transform and robust scaling, fitted on all the used lots."""
     seg = config.segment
     scaler, notes = fit_scaler(censored_at_limit(lots.values, lots.flags, config.ingest.censored),
                                seg.skew_threshold, dict(seg.transforms))
@@ -178,7 +212,90 @@ def _scale_lots(lots: _TrainingLots, config: Config, rep: Reporter
     if not scaler.transforms:
         raise InputError(f"{lots.source.name}: every analyte is constant or empty; "
                          "no chemistry to form styles from")
-    return scaler, scale_chemistry(lots.values, lots.flags, scaler, config)
+    return scaler
+
+
+def _fitted_rows(lots: _TrainingLots, scaler: ChemistryScaler, config: Config,
+                 rep: Reporter) -> np.ndarray:
+    """The rows the styles are fitted on: all, or the stratified sample above ``fit_sample``."""
+    n, size = len(lots.ids), int(config.segment.fit_sample)
+    if n <= size:
+        return np.arange(n)
+    at_limit = censored_at_limit(lots.values, lots.flags, config.ingest.censored)
+    points = np.nan_to_num(scaler.transform(at_limit), nan=0.0)
+    rows = stratified_sample(points, size, int(config.seed))
+    rep.line(f"  {n} lots: styles fitted on a stratified sample of {len(rows)}; "
+             "the others are assigned as new lots are placed")
+    return rows
+
+
+@dataclass(frozen=True)
+class _FitLots:
+    """Every used lot's scaled chemistry, positions, HDBSCAN label and group assignment.
+
+    ``clusters`` is HDBSCAN's label for the fitted lots and :data:`NOT_FITTED` for
+    the others; ``in_fit`` tells them apart.
+    """
+
+    scaled: np.ndarray
+    space: np.ndarray
+    map2d: np.ndarray
+    clusters: np.ndarray
+    assignment: Assignment
+    soft: np.ndarray
+    in_fit: np.ndarray
+
+
+NOT_FITTED = -2  # the cluster label of a lot outside the fitted sample
+PLACE_BATCH = 50_000  # lots outside the sample are placed this many at a time
+
+
+def _group_predictor(space: np.ndarray, final: Clustering, clusterer: object,
+                     shapes: list[StyleShape], cutoff: float) -> Predictor:
+    """The fit's predictor in group indices, for the lots outside the fitted sample."""
+    if final.n_groups <= 1:
+        return Predictor(None, (), tuple(shapes), float(cutoff))
+    return fit_predictor(clusterer, space, [int(g) for g in final.group_of_cluster], shapes,
+                         cutoff)
+
+
+def _with_others(sample: _FitLots, lots: _TrainingLots, fitted: np.ndarray,
+                 scaler: ChemistryScaler, config: Config, embedding: _Embedding,
+                 predictor: Predictor, rep: Reporter) -> _FitLots:
+    """Every used lot: the fitted sample as fitted, the others placed against it.
+
+    The others go through :meth:`vinstrata.segment.reference.FitReference.locate`,
+    the path new lots take in ``vinstrata place``.
+    """
+    n = len(lots.ids)
+    others = np.setdiff1d(np.arange(n), fitted)
+    reference = fit_reference(sample.scaled, embedding.space, embedding.map2d,
+                              config.segment.space, embedding.neighbours, predictor)
+    n_groups = sample.soft.shape[1]
+    scaled = np.empty((n, sample.scaled.shape[1]))
+    space = np.empty((n, embedding.space.shape[1]), dtype=np.float32)
+    map2d = np.empty((n, 2), dtype=np.float32)
+    soft = np.empty((n, n_groups))
+    clusters = np.full(n, NOT_FITTED, dtype=np.int64)
+    parts = {f.name: np.empty(n, dtype=getattr(sample.assignment, f.name).dtype)
+             for f in dataclasses.fields(Assignment)}
+    for name, part in parts.items():
+        part[fitted] = getattr(sample.assignment, name)
+    scaled[fitted], space[fitted], map2d[fitted] = sample.scaled, sample.space, sample.map2d
+    soft[fitted], clusters[fitted] = sample.soft, sample.clusters
+    for start in range(0, len(others), PLACE_BATCH):
+        rows = others[start:start + PLACE_BATCH]
+        part = lots.take(rows)
+        chem = scale_chemistry(part.values, part.flags, scaler, config, reference=sample.scaled)
+        located = reference.locate(chem)
+        scaled[rows], space[rows], map2d[rows] = chem, located.space, located.map_xy
+        soft[rows] = predictor.soft(located.space)
+        for name, values in parts.items():
+            values[rows] = getattr(located.assignment, name)
+        rep.bar(min(start + PLACE_BATCH, len(others)), len(others), "  assigning the others")
+    return _FitLots(scaled=scaled, space=space, map2d=map2d, clusters=clusters,
+                    assignment=Assignment(**parts), soft=soft,
+                    in_fit=np.isin(np.arange(n), fitted))
 
 
 @dataclass(frozen=True)
@@ -247,16 +364,15 @@ def _final_clusterer(space: np.ndarray, final: Clustering,
     return clusterer
 
 
-def _assign_groups(space: np.ndarray, scaled: np.ndarray, final: Clustering,
-                   fitted: dict[tuple[int, int], object], cutoff: float
-                   ) -> tuple[Assignment, np.ndarray, list[StyleShape]]:
+def _assign_groups(space: np.ndarray, scaled: np.ndarray, final: Clustering, clusterer: object,
+                   cutoff: float) -> tuple[Assignment, np.ndarray, list[StyleShape]]:
     """The lots assigned to the chosen candidate's joined groups, before they become styles.
 
     Returns the assignment in group indices, the soft membership of each lot to
     each group and each group's typicality shape (fitted on its HDBSCAN members).
     """
     prediction, soft = training_prediction(
-        _final_clusterer(space, final, fitted), space, final.groups, final.clusters,
+        clusterer, space, final.groups, final.clusters,
         final.probabilities, final.group_of_cluster, final.n_groups)
     shapes = [fit_shape(scaled[prediction.style_index == g])
               for g in range(max(final.n_groups, 1))]
@@ -384,8 +500,8 @@ def _report_styles(styles: pd.DataFrame, rep: Reporter) -> None:
         rep.line("  one style: the chemistry shows no separate styles")
 
 
-def _lot_frame(ids: pd.DataFrame, styles: _StyleOrder, final: Clustering,
-               map2d: np.ndarray) -> pd.DataFrame:
+def _lot_frame(ids: pd.DataFrame, styles: _StyleOrder, clusters: np.ndarray,
+               map2d: np.ndarray, in_fit: np.ndarray) -> pd.DataFrame:
     """The model's ``lots`` table: each training lot's style, membership, score and place."""
     a = styles.assignment
     return pd.DataFrame({
@@ -396,8 +512,9 @@ def _lot_frame(ids: pd.DataFrame, styles: _StyleOrder, final: Clustering,
         "style_index": a.style_index.astype(int), "membership": a.membership.astype(float),
         "outlier_score": a.outlier_score.astype(float),
         "nearest_style": np.array(styles.ids, dtype=object)[a.nearest_index],
-        "cluster": final.clusters.astype(int),
+        "cluster": clusters.astype(int),
         "map_x": map2d[:, 0].astype(float), "map_y": map2d[:, 1].astype(float),
+        "in_fit": in_fit.astype(bool),
     })
 
 

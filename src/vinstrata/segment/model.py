@@ -12,14 +12,17 @@ JSON, NPY and Parquet files only; loading it never executes code:
                        matched to (``--previous``); the SHA-256 and size
                        of every other file and a checksum of itself
 ``rows.parquet``       every input row: file row, lot id, status, detail
-``lots.parquet``       the used training lots: id, grade, style assignment
+``lots.parquet``       the used training lots: id, grade, style assignment,
+                       ``in_fit`` (fitted on, or assigned as a new lot above
+                       ``segment.fit_sample``)
 ``values.parquet``     their analytes in canonical units (NaN where missing)
 ``flags.parquet``      their per-cell states (ok, missing, censored, ...)
 ``extra.parquet``      passthrough columns of every input row
 ``scaled.npy``         scaled (and imputed) chemistry, lots x analytes
 ``space.npy``          clustering-space coordinates
 ``map2d.npy``          the 2-D map for plots
-``clusters.npy``       raw HDBSCAN labels (to verify a rebuilt clusterer)
+``clusters.npy``       raw HDBSCAN labels (to verify a rebuilt clusterer);
+                       -2 for lots outside the fitted sample
 ``memberships.npy``    soft membership of each lot to each style
 ``styles.parquet``     the style table; ``style_stats.parquet`` per-analyte
                        medians and quartiles; ``sweep.parquet`` the cluster-size
@@ -51,8 +54,10 @@ progress (``model.json`` changes while its files are read) reads again.
 
 The HDBSCAN prediction structures cannot be stored as plain data; they are
 rebuilt on demand (:func:`vinstrata.segment.rebuild_clusterer`) by refitting
-HDBSCAN on the stored clustering coordinates with the stored parameters, which
-is deterministic, and the rebuilt labels are checked against ``clusters.npy``.
+HDBSCAN on the stored clustering coordinates of the fitted lots with the stored
+parameters, which is deterministic, and the rebuilt labels are checked against
+``clusters.npy``; so is the k-d tree new lots are placed with
+(:mod:`vinstrata.segment.reference`).
 """
 
 from __future__ import annotations
@@ -188,6 +193,15 @@ class StyleModel:
     def analytes(self) -> tuple[str, ...]:
         """Analytes the styles were formed on (constant ones dropped)."""
         return self.scaler.analytes
+
+    @property
+    def in_fit(self) -> np.ndarray:
+        """Which lots the styles were fitted on (all, unless the range exceeded
+        ``segment.fit_sample``: then the sample, and the others were assigned as
+        new lots are)."""
+        if "in_fit" in self.lots.columns:
+            return self.lots["in_fit"].to_numpy(dtype=bool)
+        return np.ones(len(self.lots), dtype=bool)
 
     @property
     def style_ids(self) -> list[str]:
