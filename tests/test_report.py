@@ -5,14 +5,18 @@ from __future__ import annotations
 import shutil
 import subprocess
 
+import numpy as np
 import pytest
+from matplotlib.collections import PathCollection
 from pypdf import PdfReader
 
 from conftest import DEMO, ROOT
 from vinstrata import pipeline
 from vinstrata.place import place_lots
 from vinstrata.place.limits import CAUTION
-from vinstrata.report import page_count, write_briefing
+from vinstrata.read.lots import UNASSIGNED
+from vinstrata.report import gather, page_count, write_briefing
+from vinstrata.report.pages import MAP_POINTS, map_sample, maps
 
 
 @pytest.fixture(scope="module")
@@ -114,3 +118,44 @@ def test_methods_page_states_the_profiles_settings_not_the_briefings_config(
         text = _methods_page(pdf)
         assert "bootstrap of 500 resamples" in text, extra
         assert "2000" not in text
+
+
+def test_default_briefing_of_the_demo_range_draws_every_lot(demo_model, briefing):
+    # 6,000 lots are below the default cap: no sample, and the page says none
+    assert len(demo_model.lots) <= MAP_POINTS
+    _, _, text = briefing
+    assert "seeded sample" not in text
+
+
+def test_map_sample_keeps_small_strata_and_is_seeded():
+    # planted truth: 9,000 lots of one style, 900 of another, 100 that fit no style
+    strata = np.array(["S1"] * 9000 + ["S2"] * 900 + [UNASSIGNED] * 100, dtype=object)
+    sample = map_sample(strata, 2000, seed=7)
+    drawn = strata[sample.index]
+    assert len(sample.index) == 2000 and sample.sampled
+    assert np.all(np.diff(sample.index) > 0)  # distinct lots, in file order
+    assert (drawn == UNASSIGNED).sum() == 100  # below the floor: every one of them
+    assert (drawn == "S2").sum() >= sample.floor
+    assert np.array_equal(sample.index, map_sample(strata, 2000, seed=7).index)
+    assert not np.array_equal(sample.index, map_sample(strata, 2000, seed=8).index)
+    assert not map_sample(strata, 10_000, seed=7).sampled
+
+
+def test_briefing_over_the_cap_draws_at_most_the_cap_and_says_so(demo_model, demo_profiles,
+                                                                  tmp_path):
+    cap = 1000
+    n = len(demo_model.lots)
+    assert n > cap
+    data = gather(demo_model, demo_profiles, map_points=cap)
+    figure = maps(data, 2)
+    for ax in figure.axes:
+        dots = sum(len(c.get_offsets()) for c in ax.collections
+                   if isinstance(c, PathCollection))
+        assert 0 < dots <= cap
+    # every style and the lots that fit no style are on the map
+    drawn = demo_model.lots["style"].to_numpy(dtype=object)[data.map_sample.index]
+    assert set(drawn) == set(demo_model.lots["style"])
+    assert UNASSIGNED in set(drawn)
+    path = write_briefing(tmp_path / "sampled.pdf", demo_model, demo_profiles, map_points=cap)
+    page = " ".join(PdfReader(str(path)).pages[1].extract_text().split())
+    assert f"Maps drawn from a seeded sample of {cap:,} of {n:,} lots." in page

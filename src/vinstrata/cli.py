@@ -10,6 +10,7 @@ exit code 1 (``--debug`` shows the traceback).
 
 from __future__ import annotations
 
+import re
 import sys
 import traceback
 from pathlib import Path
@@ -45,6 +46,19 @@ class State:
 ENV_PREFIX = "VINSTRATA"  # VINSTRATA_<COMMAND>_<OPTION>, e.g. VINSTRATA_SEGMENT_OUT
 # inputs click checks: it names a missing file in its own usage error (exit code 2)
 LOT_FILE = click.Path(exists=True, dir_okay=False, path_type=Path)
+
+
+class _LotPath(click.Path):
+    """A lot file, a folder of lot files or a glob pattern (``lots/*.parquet``); a pattern
+    is left to the reader, which refuses one matching nothing in one line (exit code 2)."""
+
+    def convert(self, value, param, ctx):  # type: ignore[no-untyped-def]
+        if any(mark in str(value) for mark in "*?[") and not Path(value).exists():
+            return Path(value)
+        return super().convert(value, param, ctx)
+
+
+LOTS = _LotPath(exists=True, path_type=Path)  # lot inputs: a file, a folder or a pattern
 RESULT_FOLDER = click.Path(exists=True, file_okay=False, path_type=Path)
 # a model folder is checked by load_model, which first puts back one that an interrupted
 # save set aside: click's own existence check would refuse that folder
@@ -179,7 +193,7 @@ def demo(out_dir: Path, n_lots: int, seed: int, noise_share: float, blank_share:
 
 
 @cli.command()
-@click.argument("lots", type=LOT_FILE)
+@click.argument("lots", type=LOTS)
 @config_option("check")
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
 @click.option("--out", "out_dir", default=None, type=OUT_FOLDER,
@@ -195,7 +209,9 @@ def check(state: State, lots: Path, config_path: Path | None, sheet: str | None,
 
     rep = state.reporter()
     config = _config(config_path)
-    out = Path(out_dir or f"check_{Path(lots).stem}")
+    # a glob pattern names no one file: its wildcards make no folder name
+    stem = re.sub(r"[*?\[\]]+", "_", Path(lots).stem).strip("_") or "lots"
+    out = Path(out_dir or f"check_{stem}")
     with OutputFolder(out, "check") as folder:
         with rep.stage("check: read and validate"):
             table = pipeline.load(lots, config, sheet=sheet,
@@ -216,7 +232,7 @@ def check(state: State, lots: Path, config_path: Path | None, sheet: str | None,
 
 
 @cli.command()
-@click.argument("lots", type=LOT_FILE)
+@click.argument("lots", type=LOTS)
 @config_option("segment")
 @click.option("--out", "out_dir", required=True, type=OUT_FOLDER,
               help="Output folder (model/ goes inside).")
@@ -294,7 +310,7 @@ def profile(state: State, model_dir: Path, config_path: Path | None, out_dir: Pa
 
 
 @cli.command()
-@click.argument("new", type=LOT_FILE)
+@click.argument("new", type=LOTS)
 @click.option("--model", "model_dir", required=True, type=MODEL_FOLDER,
               help="The model/ folder written by segment.")
 @config_option("place", CONFIG_HELP + " Default: the model's own.")
@@ -302,31 +318,56 @@ def profile(state: State, model_dir: Path, config_path: Path | None, out_dir: Pa
 @click.option("--sheet", default=None, help="Excel sheet to read (default: the first).")
 @click.option("--format", "formats", type=FORMATS, default="csv", show_default=True,
               help=FORMAT_HELP)
+@click.option("--engine", type=click.Choice(["local", "dask"]), default="local",
+              show_default=True,
+              help="local: this process, in batches of [place] batch_lots; dask: the batches "
+                   "on a Dask cluster, written as the Parquet datasets placements/ and "
+                   "placement_details/ (needs the 'dask' extra).")
+@click.option("--scheduler", default=None, metavar="ADDRESS",
+              help="With --engine dask: a running scheduler (tcp://host:8786); default: a "
+                   "local cluster, one worker process per core.")
 @shared_options
 @click.pass_obj
 def place(state: State, new: Path, model_dir: Path, config_path: Path | None, out_dir: Path,
-          sheet: str | None, formats: str) -> None:
+          sheet: str | None, formats: str, engine: str, scheduler: str | None) -> None:
     """Place new lots against their styles; writes placements.csv and details."""
+    from contextlib import nullcontext
+
     from vinstrata import pipeline
     from vinstrata.place.text import describe
 
+    if scheduler is not None and engine != "dask":
+        raise InputError("--scheduler needs --engine dask")
+    if engine == "dask":
+        from vinstrata.place.cluster import _import_distributed
+
+        _import_distributed()  # refuse before any work when the extra is missing
     rep = state.reporter()
     with OutputFolder(out_dir, "place") as folder:
         model, config = _model_and_config(model_dir, config_path)
         identity = pipeline.run_identity(model)
         folder.claim(identity)
         with rep.stage("check: read and validate the new lots"):
-            table = pipeline.load_new(new, model, config, sheet=sheet)
-        pipeline.warn_rejections(table, rep, where="placements.csv")
+            batches = pipeline.new_lot_batches(new, model, config, config.place.batch_lots,
+                                               sheet=sheet)
+            scan = pipeline.scan_new(batches, model, config)
+        pipeline.warn_file(scan, batches, rep, where="placements.csv")
         with rep.stage("profile: the model's styles, for their driver cuts"):
             profiles = (pipeline.profile(model, config, for_placing=True) if model.has_grade
                         else None)
-        with rep.stage("place: new lots against their styles"):
-            placements = pipeline.place(table, model, profiles, config, rep)
-        with held_back():
-            written = pipeline.write_place(placements, out_dir, config, formats)
+        if engine == "dask":
+            from vinstrata.place.cluster import dask_runner
+
+            running = dask_runner(model, profiles, config, scheduler)
+        else:
+            running = nullcontext(None)
+        with rep.stage("place: new lots against their styles, written as they come"), \
+                running as runner, held_back():
+            written, tally = pipeline.place_stream(batches, scan, model, profiles, config,
+                                                   out_dir, formats, rep, runner=runner,
+                                                   dataset=engine == "dask")
         folder.commit(identity, written)
-    _say(describe(placements))
+    _say(describe(tally.head, tally=tally) if tally.head is not None else "no rows")
     _summary(rep)
     _say(f"wrote {out_dir}/")
 
@@ -403,8 +444,8 @@ def name_command(state: State, model_dir: Path, style: str, new_name: str) -> No
 
 
 @cli.command()
-@click.argument("lots", required=False, type=LOT_FILE)
-@click.option("--new", "new_lots", default=None, type=LOT_FILE, help="New lots to place.")
+@click.argument("lots", required=False, type=LOTS)
+@click.option("--new", "new_lots", default=None, type=LOTS, help="New lots to place.")
 @config_option("run")
 @click.option("--out", "out_dir", default=None, type=OUT_FOLDER,
               help="Output folder (default: a new vinstrata-run-N folder here).")

@@ -287,6 +287,7 @@ class Segment:
         {}, _table_of(_choice(AUTO, "log", "none"), '"auto", "log" or "none"'))
     impute_neighbours: int = setting(5, _between(_integer, 1, 100))
     map_min_dist: float = setting(0.1, _between(_number, 0.0, 1.0))
+    fit_sample: int = setting(50_000, _positive(_integer, 100))
 
 
 @dataclass(frozen=True)
@@ -310,6 +311,8 @@ class Place:
     band_neighbours: int = setting(15, _between(_integer, 1, 500))
     atypical_percentile: float = setting(95.0, _between(_number, 50.0, 100.0))
     z_flag: float = setting(3.0, _positive(_number, 0.5))
+    # new lots read and placed at a time: memory grows with this, not with the file
+    batch_lots: int = setting(10_000, _between(_integer, 1, 10_000_000))
 
 
 @dataclass(frozen=True)

@@ -180,6 +180,11 @@ def _links(recipe: StyleRecipe) -> dict[str, tuple[tuple[str, float], ...]]:
     return links
 
 
+# standard normals one lot takes from the stream, in the order _draw takes them: the
+# analytes' own parts (density aside), the non-sugar extract, the density noise
+NORMALS_PER_LOT = len(ANALYTES) + 1
+
+
 def _draw(rng: np.random.Generator, recipe: StyleRecipe, n: int) -> tuple[pd.DataFrame, np.ndarray]:
     """Chemistry of ``n`` lots of one style and each lot's planted grade effect.
 
@@ -188,6 +193,29 @@ def _draw(rng: np.random.Generator, recipe: StyleRecipe, n: int) -> tuple[pd.Dat
     effect acts on the planted drivers' scores only.
     """
     own = rng.standard_normal((len(ANALYTES) - 1, n))
+    extract = rng.standard_normal(n)
+    noise = rng.standard_normal(n)
+    return _chemistry(recipe, own, extract, noise)
+
+
+def _chemistry(recipe: StyleRecipe, own: np.ndarray, extract_z: np.ndarray,
+               density_z: np.ndarray) -> tuple[pd.DataFrame, np.ndarray]:
+    """The chemistry and grade effect of lots of one style from their standard normals.
+
+    Parameters
+    ----------
+    recipe : StyleRecipe
+    own : ndarray, shape (analytes - 1, n)
+        Each analyte's own part (density aside).
+    extract_z, density_z : ndarray, shape (n,)
+        The normals of the non-sugar extract and of the density noise.
+
+    Returns
+    -------
+    (DataFrame, ndarray)
+        The lots' chemistry and their planted grade effects.
+    """
+    n = own.shape[1]
     z = {a: own[i] for i, a in enumerate(ANALYTES[:-1])}
     for analyte, parents in _links(recipe).items():
         rest = np.sqrt(max(1.0 - sum(w * w for _, w in parents), 0.0))
@@ -202,13 +230,32 @@ def _draw(rng: np.random.Generator, recipe: StyleRecipe, n: int) -> tuple[pd.Dat
     data = {a: np.maximum(v, 0.01) for a, v in data.items()}
     data["ph"] = np.clip(data["ph"], 2.8, 4.2)
     data["free_so2"] = np.minimum(data["free_so2"], 0.6 * data["total_so2"])
-    extract = recipe.extract[0] + recipe.extract[1] * rng.standard_normal(n)
+    extract = recipe.extract[0] + recipe.extract[1] * extract_z
     # ethanol-water density near 20 degC falls about 0.00118 g/mL per % vol over 10-15 % vol;
     # dissolved solids add about 0.000385 g/mL per g/L (common practice, approximate)
     data["density"] = (0.99820 - 0.00118 * data["alcohol"]
                        + 0.000385 * (data["residual_sugar"] + extract)
-                       + 0.0002 * rng.standard_normal(n))
+                       + 0.0002 * density_z)
     return pd.DataFrame(data, columns=list(ANALYTES)), effect
+
+
+def _draw_each(rng: np.random.Generator, recipes: list[StyleRecipe],
+               picks: np.ndarray) -> pd.DataFrame:
+    """Chemistry of one lot per pick, as ``_draw(rng, recipes[pick], 1)`` lot after lot.
+
+    One lot at a time takes its normals from the stream in turn, so the normals of
+    all lots drawn at once in lot order are the same numbers; drawing them in one
+    block and computing each style's lots together keeps every value and the
+    stream after it, at array speed.
+    """
+    normals = rng.standard_normal((len(picks), NORMALS_PER_LOT))
+    chem = pd.DataFrame(np.empty((len(picks), len(ANALYTES))), columns=list(ANALYTES))
+    for idx in np.unique(picks):
+        rows = np.flatnonzero(picks == idx)
+        part = normals[rows]
+        drawn, _ = _chemistry(recipes[idx], part[:, :-2].T, part[:, -2], part[:, -1])
+        chem.iloc[rows] = drawn.to_numpy()
+    return chem
 
 
 def _grade(rng: np.random.Generator, base: float, effect: np.ndarray) -> np.ndarray:
@@ -239,13 +286,27 @@ def _counts(n_lots: int, recipes: list[StyleRecipe]) -> list[int]:
     return counts.tolist()
 
 
+def _colours(rng: np.random.Generator, truth_style: np.ndarray) -> np.ndarray:
+    """Each lot's colour: its style's, or a random one for a lot of random chemistry.
+
+    The random colours are drawn one lot at a time in lot order, as they always were,
+    so that the stream and every later draw stay the same for a seed.
+    """
+    colour = pd.Series(truth_style).map({k: r.colour for k, r in RECIPES_BY_KEY.items()})
+    out = colour.to_numpy(dtype=object)
+    for k in np.flatnonzero(colour.isna().to_numpy()):
+        out[k] = rng.choice(["red", "white", "rose"])
+    return out
+
+
 def _as_text(frame: pd.DataFrame, blank: np.ndarray | None = None) -> pd.DataFrame:
     """Round like a lab report, write censored values as '<limit'."""
     out = pd.DataFrame(index=frame.index)
     for analyte in ANALYTES:
         digits = DECIMALS[analyte]
         values = frame[analyte].to_numpy()
-        text = np.array([f"{v:.{digits}f}" for v in values], dtype=object)
+        # Python floats format as NumPy's do, and map over a list is the fast path
+        text = np.array(list(map(f"{{:.{digits}f}}".format, values.tolist())), dtype=object)
         limit = CENSOR_LIMIT.get(analyte)
         if limit is not None:
             text[values < limit] = f"<{limit:g}"
@@ -305,8 +366,7 @@ def generate_demo(n_lots: int = 6000, seed: int = 7, noise_share: float = 0.0,
     chem, grade = chem.iloc[order].reset_index(drop=True), grade[order]
     truth_style = np.asarray(truth, dtype=object)[order]
     vintage = rng.choice(VINTAGES, size=n)
-    colour = np.array([RECIPES_BY_KEY[t].colour if t in RECIPES_BY_KEY else
-                       rng.choice(["red", "white", "rose"]) for t in truth_style], dtype=object)
+    colour = _colours(rng, truth_style)
     lot_ids = [f"QV{v % 100:02d}-{i + 1:05d}" for i, v in enumerate(vintage)]
     blank = rng.random((n, len(ANALYTES))) < blank_share
     text = _as_text(chem, blank)
@@ -396,12 +456,9 @@ def _new_lots(rng: np.random.Generator, recipes: list[StyleRecipe], reference: p
     n_typical = max(n_new - 6, 0)
     weights = np.array([max(r.share, 0.02) for r in recipes])
     picks = rng.choice(len(recipes), size=n_typical, p=weights / weights.sum())
-    frames, truth, anomaly = [], [], []
-    for idx in picks:
-        chem, _ = _draw(rng, recipes[idx], 1)
-        frames.append(chem)
-        truth.append(recipes[idx].key)
-        anomaly.append("")
+    frames = [_draw_each(rng, recipes, picks)] if n_typical else []
+    truth = [recipes[idx].key for idx in picks]
+    anomaly = [""] * n_typical
     planted = _planted_anomalies(rng, recipes, reference)
     for style, note, chem in planted[: max(n_new - n_typical, 0)]:
         frames.append(chem)

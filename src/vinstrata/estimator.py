@@ -359,7 +359,7 @@ min_cluster_size, min_samples, outlier_cutoff : optional
         """Each lot's soft membership to every style (rows sum to 1; NaN when rejected).
 
         HDBSCAN's membership vectors summed over each style's clusters, as
-        segmentation gives them (:func:`vinstrata.segment.assign.soft_memberships`).
+        segmentation gives them (:meth:`vinstrata.segment.assign.Predictor.soft`).
         """
         from vinstrata.segment.assign import predict_styles
 

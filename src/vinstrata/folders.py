@@ -267,12 +267,16 @@ def sha256_file(path: str | Path) -> str:
     return digest.hexdigest()
 
 
-def file_entry(path: str | Path) -> dict[str, Any]:
+def file_entry(path: str | Path, parts: bool = False) -> dict[str, Any]:
     """``{"sha256", "size"}`` of a file; of a folder, a hash over its files' names and hashes.
 
     Parameters
     ----------
     path : str or Path
+    parts : bool
+        For a folder, also list each of its files (``"files"``: name -> sha256 and
+        size), so that a later run can remove them one by one (a dataset, such as
+        ``placements/`` of ``place --engine dask``).
 
     Returns
     -------
@@ -281,15 +285,17 @@ def file_entry(path: str | Path) -> dict[str, Any]:
     path = Path(path)
     if not path.is_dir():
         return {"sha256": sha256_file(path), "size": path.stat().st_size}
-    lines, size = [], 0
+    lines, size, files = [], 0, {}
     # hidden names (a file browser's .DS_Store) are not part of what was written
     items = (p for p in path.rglob("*") if p.is_file()
              and not any(part.startswith(".") for part in p.relative_to(path).parts))
     for item in sorted(items):
         entry = file_entry(item)
         size += entry["size"]
+        files[item.relative_to(path).as_posix()] = entry
         lines.append(f"{item.relative_to(path).as_posix()}\t{entry['sha256']}\t{entry['size']}\n")
-    return {"sha256": sha256_bytes("".join(lines).encode("utf-8")), "size": size}
+    whole = {"sha256": sha256_bytes("".join(lines).encode("utf-8")), "size": size}
+    return {**whole, "files": files} if parts else whole
 
 
 # --------------------------------------------------------------------------- folders
@@ -728,6 +734,15 @@ class OutputFolder:
                 _remove(path)
         elif self._holds(key, entry):
             _remove(path)
+        elif isinstance(entry.get("files"), dict) and path.is_dir() and not path.is_symlink():
+            # a dataset changed since: its listed parts still as written go, the rest stays
+            for name, part in sorted(entry["files"].items()):
+                listed = self._inside(f"{key}{name}")
+                if listed is not None and listed.is_file() and file_entry(listed) == {
+                        "sha256": part.get("sha256"), "size": part.get("size")}:
+                    _remove(listed)
+            with contextlib.suppress(OSError):  # not empty: files no manifest lists
+                path.rmdir()
 
     def _holds(self, key: str, entry: dict[str, Any]) -> bool:
         """Whether the folder still holds what ``entry`` lists under ``key``."""
@@ -801,7 +816,10 @@ class OutputFolder:
         Path
             The manifest written.
         """
-        written = {self._key(Path(p)): file_entry(p) for p in paths}
+        # a folder other than a model is a dataset: its parts are listed one by one
+        written = {self._key(Path(p)): file_entry(p, parts=Path(p).is_dir()
+                                                  and not (Path(p) / "model.json").exists())
+                   for p in paths}
         own = self.path / manifest_name(self.command)
         carried: dict[str, dict[str, Any]] = {}
         for path, data in self.manifests():

@@ -30,7 +30,10 @@ from vinstrata.segment.outputs import lot_styles, style_table
 from vinstrata.tables import plain_frame, write_csv, write_lot_table, write_parquet
 
 if TYPE_CHECKING:
+    from collections.abc import Iterator
+
     from vinstrata.place.placing import Placements
+    from vinstrata.place.stream import Batches, FileScan, PlaceTally, Runner
     from vinstrata.profile.drivers import Profiles
 
 CHECK_FILES = ("quality_summary.csv", "quality_analytes.csv", "row_status.csv")
@@ -223,6 +226,216 @@ def load_new(path: str | Path, model: StyleModel, config: Config,
     return validate(raw, config, require_grade=False)
 
 
+def new_lot_batches(path: str | Path, model: StyleModel, config: Config, batch_rows: int,
+                    sheet: str | None = None) -> Batches:
+    """The new-lot file as batches of ``batch_rows`` validated rows, one pass per call.
+
+    The file is refused first, in one line, when its analytes do not fit the
+    model (:func:`vinstrata.place.match.check_columns`, on the header).
+
+    Parameters
+    ----------
+    path : str or Path
+        A lot file, or a dataset of them.
+    model : StyleModel
+    config : Config
+    batch_rows : int
+    sheet : str, optional
+        ``--sheet``.
+
+    Returns
+    -------
+    callable
+        Each call starts a fresh pass: an iterator of LotTable, row numbers going on
+        across batches.
+    """
+    from vinstrata.place.match import check_columns
+
+    config = _with_sheet(config, sheet)
+    try:
+        from vinstrata.read.ingest import read_batches
+        from vinstrata.read.lots import load_lot_batches  # type: ignore[attr-defined]
+    except ImportError:  # the batched reader is not there: slices of the file read whole
+        table = load_new(path, model, config)
+        return lambda: _slices(table, batch_rows)
+    limits = ReadLimits.from_config(config.ingest)
+    head = next(iter(read_batches(path, 1, sheet=config.ingest.sheet,
+                                  delimiter=config.ingest.delimiter, limits=limits)))
+    check_columns(head, model, config)
+    return lambda: load_lot_batches(path, config, batch_rows, require_grade=False)
+
+
+def _slices(table: LotTable, batch_rows: int) -> Iterator[LotTable]:
+    """``table`` in batches of ``batch_rows`` rows (each with its own RangeIndex)."""
+    for start in range(0, max(table.n_rows, 1), batch_rows):
+        part = slice(start, start + batch_rows)
+        yield dataclasses.replace(
+            table, **{name: getattr(table, name).iloc[part].reset_index(drop=True)
+                      for name in ("ids", "values", "flags", "extra")})
+
+
+def scan_new(batches: Batches, model: StyleModel, config: Config) -> FileScan:
+    """Read the new lots once for the file-level checks (:func:`vinstrata.place.stream.scan_file`).
+    """
+    from vinstrata.place.stream import scan_file
+
+    return scan_file(batches(), model, config.ingest.duplicate_ids)
+
+
+def warn_file(scan: FileScan, batches: Batches, rep: Reporter,
+              where: str = "placements.csv") -> None:
+    """:func:`warn_rejections` for a file read in batches: the same lines, for the whole file."""
+    from vinstrata.place.stream import file_warnings
+
+    for line in file_warnings(scan, batches, where):
+        rep.warn(line)
+
+
+def place_stream(batches: Batches, scan: FileScan, model: StyleModel,
+                 profiles: Profiles | None, config: Config, out: str | Path,
+                 formats: str = "csv", rep: Reporter | None = None,
+                 runner: Runner | None = None, dataset: bool = False
+                 ) -> tuple[list[Path], PlaceTally]:
+    """Place the new lots batch by batch and write them as they come, in bounded memory.
+
+    Inside a :func:`vinstrata.folders.held_back` block every file keeps its
+    temporary name until the block ends, so a run refused or interrupted on
+    the way leaves ``out`` as it was.
+
+    Parameters
+    ----------
+    batches : callable
+        :func:`new_lot_batches`.
+    scan : FileScan
+        :func:`scan_new` of the same batches.
+    model : StyleModel
+    profiles : Profiles, optional
+    config : Config
+    out : str or Path
+    formats : {"csv", "parquet", "both"}
+        ``--format`` of the four per-lot tables (without ``dataset``).
+    rep : Reporter, optional
+    runner : callable, optional
+        Places the batches (:func:`vinstrata.place.stream.local_runner` when None;
+        :func:`vinstrata.place.cluster.dask_runner` on a cluster).
+    dataset : bool
+        Write ``placements/`` and ``placement_details/`` as Parquet datasets, one part
+        per batch, and ``placement_summary.csv``, instead of the four tables.
+
+    Returns
+    -------
+    paths : list of Path
+        The files and folders written.
+    tally : PlaceTally
+        The counts and first rows for the terminal table.
+    """
+    from vinstrata.place.context import placing_context
+    from vinstrata.place.stream import PlaceTally, check_file_units, local_runner, placed_batches
+
+    rep = rep or Reporter()
+    check_file_units(scan, model, batches)
+    if not scan.used.any():
+        rep.warn(f"{scan.source.name}: no usable new lots")
+    settings = None
+    if runner is None:
+        context = placing_context(model, profiles, config)
+        runner, settings = local_runner(context), context.settings
+    out = Path(out)
+    tally = PlaceTally()
+    sink = _DatasetSink(out) if dataset else _TableSink(out, formats, _safe(config))
+    try:
+        for placements in placed_batches(batches, scan, runner):
+            sink.write(placements)
+            tally.add(placements)
+            settings = placements.settings
+    except BaseException:
+        sink.abort()
+        raise
+    written = sink.close(tally)
+    if settings is None:
+        from vinstrata.settings import PlaceSettings
+
+        settings = PlaceSettings.from_config(config, model.source.sha256)
+    return [*written, _write_settings(settings.to_dict(), out / PLACE_SETTINGS)], tally
+
+
+PLACE_DATASETS = ("placements", "placement_details")  # --engine dask: one part per batch
+PLACE_SUMMARY = "placement_summary.csv"
+
+
+class _TableSink:
+    """The four per-lot tables, appended batch by batch."""
+
+    def __init__(self, out: Path, formats: str, safe: bool) -> None:
+        from vinstrata.tables import LotTableAppender
+
+        self.writers = [LotTableAppender(out / name, formats, safe) for name in PLACE_FILES]
+
+    def write(self, placements: Placements) -> None:
+        frames = (placements.lots, placements.details, placements.analytes,
+                  placements.neighbours)
+        for writer, frame in zip(self.writers, frames):
+            writer.write(frame)
+
+    def close(self, tally: PlaceTally) -> list[Path]:
+        return [path for writer in self.writers for path in writer.close()]
+
+    def abort(self) -> None:
+        for writer in self.writers:
+            writer.abort()
+
+
+class _DatasetSink:
+    """``placements/`` and ``placement_details/`` as Parquet datasets, one part per batch
+    (``part-00000.parquet`` ...), and ``placement_summary.csv``."""
+
+    def __init__(self, out: Path) -> None:
+        from contextlib import ExitStack
+
+        from vinstrata.folders import new_folder
+
+        self.out = out
+        self.stack = ExitStack()
+        self.folders = [self.stack.enter_context(new_folder(out / name))
+                        for name in PLACE_DATASETS]
+        self.n = 0
+
+    def write(self, placements: Placements) -> None:
+        name = f"part-{self.n:05d}.parquet"
+        write_parquet(_typed_lots(placements.lots), self.folders[0] / name)
+        if len(placements.details.columns):
+            write_parquet(placements.details, self.folders[1] / name)
+        self.n += 1
+
+    def close(self, tally: PlaceTally) -> list[Path]:
+        self.stack.close()
+        summary = pd.DataFrame(
+            [(style, n, atypical) for style, (n, atypical) in sorted(tally.styles.items())],
+            columns=["style", "lots", "atypical"])
+        summary = pd.concat([summary, pd.DataFrame(
+            [("rejected", tally.rejected, 0)], columns=summary.columns)], ignore_index=True)
+        return [*(self.out / name for name in PLACE_DATASETS),
+                write_csv(summary, self.out / PLACE_SUMMARY)]
+
+    def abort(self) -> None:
+        import sys
+
+        self.stack.__exit__(*sys.exc_info())
+
+
+def _typed_lots(lots: pd.DataFrame) -> pd.DataFrame:
+    """``placements`` with its placement columns typed, so that every part of a dataset
+    has the same schema whether or not its batch placed a lot."""
+    out = lots.copy()
+    for column in ("membership", "outlier_score", "share_top"):
+        out[column] = pd.to_numeric(out[column], errors="coerce").astype(float)
+    for column in ("atypical", "trusted"):
+        out[column] = out[column].astype("boolean")
+    for column in ("style", "style_name", "nearest_lots", "indicative_band", "flags"):
+        out[column] = out[column].astype("string")
+    return out
+
+
 def place(table: LotTable, model: StyleModel, profiles: Profiles | None,
           config: Config | None = None, rep: Reporter | None = None) -> Placements:
     """Place new lots (see :func:`vinstrata.place.place_lots`)."""
@@ -332,19 +545,38 @@ def read_profile(folder: str | Path) -> Profiles:
                     settings=settings)
 
 
+def _read_dataset(folder: Path) -> pd.DataFrame:
+    """A Parquet dataset written one part per batch, its parts in order."""
+    parts = sorted(folder.glob("part-*.parquet"))
+    try:
+        frames = [pd.read_parquet(part) for part in parts]
+    except (OSError, ValueError) as exc:
+        raise InputError(f"{folder}: unreadable ({exc.__class__.__name__})") from None
+    if not frames:
+        return pd.DataFrame()
+    return pd.concat(frames, ignore_index=True)
+
+
 def read_place(folder: str | Path) -> Placements:
-    """Read the files written by :func:`write_place` back, with their settings."""
+    """Read the files written by :func:`write_place` (or the datasets of :func:`place_stream`)
+    back, with their settings; a dataset folder has no analyte or neighbour tables."""
     from vinstrata.place.placing import Placements
     from vinstrata.settings import PlaceSettings
 
     folder = Path(folder)
-    frames = [_read(folder, name, "place") for name in PLACE_FILES]
+    if (folder / PLACE_DATASETS[0]).is_dir():  # place --engine dask: Parquet datasets
+        frames = [*(_read_dataset(folder / name) for name in PLACE_DATASETS),
+                  pd.DataFrame(), pd.DataFrame()]
+    else:
+        frames = [_read(folder, name, "place") for name in PLACE_FILES]
     settings = PlaceSettings.from_dict(_read_settings(folder, PLACE_SETTINGS, "place"),
                                        str(folder / PLACE_SETTINGS))
     lots = _booleans(frames[0], "atypical", "trusted")
     for column in ("lot_id", "style", "indicative_band", "flags", "status"):
         lots[column] = lots[column].fillna("").astype(str)
     details = frames[1]
+    if "lot_id" not in details:  # no lot was placed
+        details = pd.DataFrame({"lot_id": [], "flags_text": [], "flags_short": []})
     details["lot_id"] = details["lot_id"].astype(str)
     for column in ("flags_text", "flags_short"):
         details[column] = details[column].fillna("").astype(str)

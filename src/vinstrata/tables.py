@@ -18,7 +18,9 @@ quoted with ``\n`` line ends, and would split the row for every reader).
 
 from __future__ import annotations
 
+import contextlib
 import re
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -223,3 +225,173 @@ def write_lot_table(frame: pd.DataFrame, path: str | Path, formats: str = "csv",
     if formats in ("parquet", "both"):
         written.append(write_parquet(frame, path.with_suffix(".parquet")))
     return written
+
+
+# --------------------------------------------------------------------------- in batches
+
+# pyarrow's own row-group size for pq.write_table: a file written in batches keeps the row
+# groups (and so the bytes) of the same table written whole
+ROW_GROUP_ROWS = 1024 * 1024
+
+
+class CsvAppender:
+    """A CSV file written a frame at a time, the same bytes as :func:`write_csv` of them all.
+
+    Each frame goes through the same cell conversion as :func:`write_csv` (a
+    cell's text depends on itself only), the header comes with the first frame
+    that has columns, and the file keeps its temporary name until
+    :meth:`close` (:func:`vinstrata.folders.atomic_path`, held back like any
+    other file inside :func:`vinstrata.folders.held_back`).
+
+    Parameters
+    ----------
+    path : str or Path
+    spreadsheet_safe : bool
+        See :func:`write_csv`.
+    """
+
+    def __init__(self, path: str | Path, spreadsheet_safe: bool = True) -> None:
+        self.path = Path(path)
+        self.safe = spreadsheet_safe
+        self._stack = contextlib.ExitStack()
+        temp = self._stack.enter_context(atomic_path(self.path))
+        # held open across write() calls; the stack closes it before the rename
+        self._handle = self._stack.enter_context(
+            open(temp, "w", encoding="utf-8", newline=""))  # noqa: SIM115
+        self._header = False
+
+    def write(self, frame: pd.DataFrame) -> None:
+        """Append the rows of ``frame`` (a frame without columns adds nothing)."""
+        if not len(frame.columns):
+            return
+        _cell_frame(frame, self.safe).to_csv(self._handle, index=False, header=not self._header,
+                                             lineterminator="\n")
+        self._header = True
+
+    def close(self) -> Path:
+        """Finish the file (an empty frame's text when no frame had columns); returns its path."""
+        if not self._header:
+            pd.DataFrame().to_csv(self._handle, index=False, lineterminator="\n")
+        self._handle.close()
+        self._stack.close()
+        return self.path
+
+    def abort(self) -> None:
+        """Drop the temporary file."""
+        self._stack.__exit__(RuntimeError, RuntimeError("aborted"), None)
+
+
+def _unified_type(types: list[object]) -> object:
+    """The one Arrow type of a column typed per batch: what a whole column would infer."""
+    import pyarrow as pa
+
+    found = [t for t in dict.fromkeys(types) if not pa.types.is_null(t)]
+    if not found:
+        return pa.null()
+    if len(found) == 1:
+        return found[0]
+    if all(pa.types.is_integer(t) or pa.types.is_floating(t) for t in found):
+        return pa.float64()  # ints and floats mixed in one column are read as floats
+    return pa.string()
+
+
+class ParquetAppender:
+    """A Parquet file written a frame at a time, the same bytes as :func:`write_parquet`
+    of them all.
+
+    A column's type is known only once every frame is seen (a batch of
+    rejected rows has no values), so each frame is spooled as a Parquet file
+    of its own beside the target; :meth:`close` gives every column the type
+    the whole column would have, and copies the spooled rows into the target
+    in row groups of :data:`ROW_GROUP_ROWS`, as :func:`pyarrow.parquet.write_table`
+    cuts them. Memory holds one row group at most.
+
+    Parameters
+    ----------
+    path : str or Path
+    """
+
+    def __init__(self, path: str | Path) -> None:
+        self.path = Path(path)
+        self._stack = contextlib.ExitStack()
+        self._temp = self._stack.enter_context(atomic_path(self.path))
+        self._spool = self._temp.with_name(self._temp.name + ".parts")
+        self._spool.mkdir()
+        self._parts: list[Path] = []
+        self._names: list[str] | None = None
+
+    def write(self, frame: pd.DataFrame) -> None:
+        """Spool the rows of ``frame`` (a frame without columns adds nothing)."""
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        if not len(frame.columns):
+            return
+        names = [str(c) for c in frame.columns]
+        self._names = self._names or names
+        table = pa.Table.from_arrays([_arrow_column(frame.iloc[:, i])
+                                      for i in range(len(names))], names=names)
+        part = self._spool / f"{len(self._parts):08d}.parquet"
+        pq.write_table(table, part)
+        self._parts.append(part)
+
+    def close(self) -> Path:
+        """Write the target from the spooled frames; returns its path."""
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+
+        try:
+            if not self._parts:
+                pq.write_table(pa.Table.from_arrays([], names=[]), self._temp)
+            else:
+                schemas = [pq.read_schema(p) for p in self._parts]
+                schema = pa.schema([(name, _unified_type([s.field(i).type for s in schemas]))
+                                    for i, name in enumerate(self._names or [])])
+                with pq.ParquetWriter(self._temp, schema) as writer:
+                    buffered: list[object] = []
+                    rows = 0
+                    for part in self._parts:
+                        buffered.append(pq.read_table(part).cast(schema))
+                        rows += buffered[-1].num_rows
+                        while rows >= ROW_GROUP_ROWS:
+                            whole = pa.concat_tables(buffered)
+                            writer.write_table(whole.slice(0, ROW_GROUP_ROWS).combine_chunks())
+                            buffered, rows = [whole.slice(ROW_GROUP_ROWS)], rows - ROW_GROUP_ROWS
+                    if rows or not buffered:
+                        writer.write_table(pa.concat_tables(buffered).combine_chunks())
+        finally:
+            shutil.rmtree(self._spool, ignore_errors=True)
+        self._stack.close()
+        return self.path
+
+    def abort(self) -> None:
+        """Drop the spooled and temporary files."""
+        shutil.rmtree(self._spool, ignore_errors=True)
+        self._stack.__exit__(RuntimeError, RuntimeError("aborted"), None)
+
+
+class LotTableAppender:
+    """A per-lot table written a frame at a time as CSV, Parquet or both
+    (:func:`write_lot_table`'s ``formats``)."""
+
+    def __init__(self, path: str | Path, formats: str = "csv",
+                 spreadsheet_safe: bool = True) -> None:
+        if formats not in FORMATS:
+            raise ValueError(f"format {formats!r} is not one of {', '.join(FORMATS)}")
+        path = Path(path)
+        self._writers: list[CsvAppender | ParquetAppender] = []
+        if formats in ("csv", "both"):
+            self._writers.append(CsvAppender(path, spreadsheet_safe))
+        if formats in ("parquet", "both"):
+            self._writers.append(ParquetAppender(path.with_suffix(".parquet")))
+
+    def write(self, frame: pd.DataFrame) -> None:
+        for writer in self._writers:
+            writer.write(frame)
+
+    def close(self) -> list[Path]:
+        return [writer.close() for writer in self._writers]
+
+    def abort(self) -> None:
+        for writer in self._writers:
+            writer.abort()

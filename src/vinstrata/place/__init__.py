@@ -3,7 +3,10 @@
 Modules, in the order the stage runs::
 
     match       Refusing new-lot files that do not fit the model: other columns, other units.
+    context     What placing needs of a model, built once and reused for every batch.
     placing     Placing new lots against the styles of a fitted model.
+    stream      Placing a new-lot file in batches, in bounded memory, with the whole file's results.
+    cluster     Placing new lots on a Dask cluster (the ``dask`` extra).
     neighbours  The nearest historical lots of new lots, and the grade bands among them.
     flags       New lots' analytes against their style: robust z, percentiles, and the driver flags.
     limits      Screening of lots against legal limits and a molecular SO2 target.
@@ -15,6 +18,14 @@ from vinstrata.lazy import attach
 _NAMES = {
     "check_columns": "vinstrata.place.match",
     "check_units": "vinstrata.place.match",
+    "PlacingContext": "vinstrata.place.context",
+    "placing_context": "vinstrata.place.context",
+    "place_batch": "vinstrata.place.placing",
+    "FileScan": "vinstrata.place.stream",
+    "scan_file": "vinstrata.place.stream",
+    "file_warnings": "vinstrata.place.stream",
+    "check_file_units": "vinstrata.place.stream",
+    "PlaceTally": "vinstrata.place.stream",
     "PLACEMENT_COLUMNS": "vinstrata.place.placing",
     "INDICATION": "vinstrata.place.placing",
     "Placements": "vinstrata.place.placing",

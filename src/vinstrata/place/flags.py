@@ -212,7 +212,8 @@ def driver_scales(model: StyleModel, profiles: Profiles) -> dict[str, DriverScal
 
 
 def driver_view(values: pd.DataFrame, model: StyleModel, profiles: Profiles | None,
-                home: np.ndarray, judged: np.ndarray | None = None) -> DriverView:
+                home: np.ndarray, judged: np.ndarray | None = None,
+                scales: dict[str, DriverScale] | None = None) -> DriverView:
     """Each new lot's driver score against its style's cut, and its driver flags.
 
     Parameters
@@ -226,6 +227,8 @@ def driver_view(values: pd.DataFrame, model: StyleModel, profiles: Profiles | No
         Each lot's style (its nearest style when it has none).
     judged : ndarray of bool, optional
         The lots to judge (the others get a score but no flag); all when None.
+    scales : dict, optional
+        :func:`driver_scales` of the model and profiles, when already built.
 
     Returns
     -------
@@ -239,7 +242,8 @@ def driver_view(values: pd.DataFrame, model: StyleModel, profiles: Profiles | No
         return DriverView(score, cut, named, flags)
     judged = np.ones(n, dtype=bool) if judged is None else np.asarray(judged, dtype=bool)
     specs = {s.name: s for s in model.specs}
-    for sid, scale in driver_scales(model, profiles).items():
+    scales = scales if scales is not None else driver_scales(model, profiles)
+    for sid, scale in scales.items():
         mine = np.flatnonzero(home == sid)
         if mine.size == 0:
             continue

@@ -19,7 +19,8 @@ def join_near(near: pd.DataFrame, n: int) -> list[str]:
     return [";".join(row) for row in ids]
 
 
-def nearest_lots(model: StyleModel, space: np.ndarray, k: int) -> pd.DataFrame:
+def nearest_lots(model: StyleModel, space: np.ndarray, k: int,
+                 index: embed.NeighbourIndex | None = None) -> pd.DataFrame:
     """The ``k`` nearest historical lots of each new lot in the clustering space.
 
     Parameters
@@ -29,6 +30,8 @@ def nearest_lots(model: StyleModel, space: np.ndarray, k: int) -> pd.DataFrame:
         The new lots' clustering-space coordinates.
     k : int
         Neighbours per lot (``place.neighbours``).
+    index : NeighbourIndex, optional
+        Over ``model.space``, when already built (:mod:`vinstrata.place.context`).
 
     Returns
     -------
@@ -36,7 +39,8 @@ def nearest_lots(model: StyleModel, space: np.ndarray, k: int) -> pd.DataFrame:
         ``lot_id`` (the new lot's position), ``rank, neighbour_lot, style, grade,
         distance``; lot-major, nearest first.
     """
-    found = embed.nearest(model.space, k, query=space)
+    index = index if index is not None else embed.NeighbourIndex(model.space)
+    found = index.query(space, k)
     lots = model.lots
     n, kk = found.indices.shape
     flat = found.indices.ravel()
@@ -49,7 +53,8 @@ def nearest_lots(model: StyleModel, space: np.ndarray, k: int) -> pd.DataFrame:
 
 
 def band_shares(model: StyleModel, space: np.ndarray, home: np.ndarray, bands: Bands,
-                include_unassigned: bool, k: int) -> tuple[np.ndarray, np.ndarray]:
+                include_unassigned: bool, k: int, pools: PoolLookup | None = None
+                ) -> tuple[np.ndarray, np.ndarray]:
     """Share of each grade band among the nearest historical lots of the same style.
 
     Parameters
@@ -64,6 +69,9 @@ def band_shares(model: StyleModel, space: np.ndarray, home: np.ndarray, bands: B
         Unassigned historical lots count under their nearest style.
     k : int
         Neighbours per lot (``place.band_neighbours``).
+    pools : tuple, optional
+        Each historical lot's band and, per style, the rows of its graded lots with a
+        tree over them, when already built (:func:`vinstrata.place.context.placing_context`).
 
     Returns
     -------
@@ -72,25 +80,59 @@ def band_shares(model: StyleModel, space: np.ndarray, home: np.ndarray, bands: B
     counts : ndarray of int
         The neighbours each share rests on.
     """
-    lots = model.lots
     n_bands = len(bands.labels)
     shares = np.full((len(space), n_bands), np.nan)
     counts = np.zeros(len(space), dtype=int)
+    if pools is None:
+        pools = style_pools(model, bands, include_unassigned)
+    lot_band, by_style = pools
+    if lot_band is None:
+        return shares, counts
+    for sid in np.unique(home):
+        pool = by_style.get(sid)
+        mine = np.flatnonzero(home == sid)
+        if pool is None:
+            continue
+        rows, index = pool
+        found = index.query(space[mine], k)
+        picked = lot_band[rows[found.indices]]
+        for j in range(n_bands):
+            shares[mine, j] = (picked == j).mean(axis=1)
+        counts[mine] = found.indices.shape[1]
+    return shares, counts
+
+
+# each historical lot's band (None without grades); per style its graded rows and their tree
+PoolLookup = tuple["np.ndarray | None", "dict[str, tuple[np.ndarray, embed.NeighbourIndex]]"]
+
+
+def style_pools(model: StyleModel, bands: Bands, include_unassigned: bool) -> PoolLookup:
+    """Each historical lot's grade band, and per style its graded lots with a tree over them.
+
+    Parameters
+    ----------
+    model : StyleModel
+    bands : Bands
+    include_unassigned : bool
+        Unassigned historical lots count under their nearest style.
+
+    Returns
+    -------
+    lot_band : ndarray of int or None
+        -1 for a lot without a band; None when no historical lot has a grade.
+    pools : dict
+        Style id -> (rows of its graded lots, NeighbourIndex over their positions).
+    """
+    lots = model.lots
     grades = lots["grade"].to_numpy(dtype=float)
     if not np.isfinite(grades).any():
-        return shares, counts
+        return None, {}
     styles, lot_band = lot_bands(grades, lots["style"].to_numpy(dtype=object),
                                  lots["nearest_style"].to_numpy(dtype=object), bands,
                                  include_unassigned)
-    for sid in np.unique(home):
-        pool = np.flatnonzero((styles == sid) & (lot_band >= 0))
-        mine = np.flatnonzero(home == sid)
-        if pool.size == 0:
-            continue
-        kk = min(k, pool.size)
-        found = embed.nearest(model.space[pool], kk, query=space[mine])
-        picked = lot_band[pool[found.indices]]
-        for j in range(n_bands):
-            shares[mine, j] = (picked == j).mean(axis=1)
-        counts[mine] = kk
-    return shares, counts
+    pools = {}
+    for sid in model.style_ids:
+        rows = np.flatnonzero((styles == sid) & (lot_band >= 0))
+        if rows.size:
+            pools[sid] = (rows, embed.NeighbourIndex(model.space[rows]))
+    return lot_band, pools

@@ -37,6 +37,7 @@ import numpy as np
 import pandas as pd
 
 from vinstrata.config import Config
+from vinstrata.place.context import PlacingContext, placing_context
 from vinstrata.place.flags import DriverView, analyte_view, driver_view, lot_colours, short_flags
 from vinstrata.place.limits import Flag, screen
 from vinstrata.place.match import check_units
@@ -44,9 +45,9 @@ from vinstrata.place.neighbours import band_shares, join_near, nearest_lots
 from vinstrata.profile.drivers import Profiles
 from vinstrata.progress import Reporter
 from vinstrata.read.lots import UNASSIGNED, LotTable
-from vinstrata.segment import embed
-from vinstrata.segment.assign import Assignment, place_in_styles
+from vinstrata.segment.assign import Assignment
 from vinstrata.segment.model import StyleModel
+from vinstrata.segment.reference import FitReference, model_reference
 from vinstrata.segment.transform import scale_chemistry
 from vinstrata.segment.typicality import atypical_line
 from vinstrata.settings import PlaceSettings
@@ -98,7 +99,8 @@ class Placed:
 
 
 def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = None,
-               config: Config | None = None, reporter: Reporter | None = None) -> Placements:
+               config: Config | None = None, reporter: Reporter | None = None,
+               context: PlacingContext | None = None) -> Placements:
     """Place the used lots of ``table`` against ``model``.
 
     Parameters
@@ -112,27 +114,57 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
     config : Config, optional
         Place and limits settings; the model's config when None.
     reporter : Reporter, optional
+    context : PlacingContext, optional
+        The model made ready for placing (:func:`vinstrata.place.context.placing_context`),
+        built once and reused across batches; built here from ``model``, ``profiles``
+        and ``config`` when None.
 
     Returns
     -------
     Placements
     """
-    config = config or model.config
-    settings = PlaceSettings.from_config(config, model.source.sha256)
     check_units(table, model)
+    context = context or placing_context(model, profiles, config)
+    if not table.used.any():
+        (reporter or Reporter()).warn(f"{table.source.name}: no usable new lots")
+    return place_batch(table, context)
+
+
+def place_batch(table: LotTable, context: PlacingContext) -> Placements:
+    """Place the used lots of one batch of new lots; no file-level check, no warning.
+
+    The lots of a batch are placed one by one (nothing of one lot depends on
+    another), so the batches of a file give, put together, the placements of
+    the whole file. The file-level checks (units, duplicate lot ids across
+    batches, the rejection warnings) are the caller's
+    (:func:`place_lots`, :mod:`vinstrata.place.stream`).
+
+    Parameters
+    ----------
+    table : LotTable
+        New lots, validated with ``require_grade=False``.
+    context : PlacingContext
+
+    Returns
+    -------
+    Placements
+    """
+    model, profiles, config, settings = (context.model, context.profiles, context.config,
+                                         context.settings)
     used = table.used
     base = _empty_lots(table)
     if not used.any():
-        (reporter or Reporter()).warn(f"{table.source.name}: no usable new lots")
         return Placements(base, pd.DataFrame(), pd.DataFrame(), pd.DataFrame(), settings)
     values = table.values.loc[used].reset_index(drop=True)
     flags = table.flags.loc[used].reset_index(drop=True)
-    placed = locate_lots(values, flags, model, config, settings.atypical_percentile)
-    near = nearest_lots(model, placed.space, settings.neighbours)
+    placed = locate_lots(values, flags, model, config, settings.atypical_percentile,
+                         reference=context.reference, line=context.line)
+    near = nearest_lots(model, placed.space, settings.neighbours, index=context.space_index)
     shares, counts = band_shares(model, placed.space, placed.home, settings.bands,
-                                 settings.include_unassigned, settings.band_neighbours)
+                                 settings.include_unassigned, settings.band_neighbours,
+                                 pools=context.band_pools)
     drivers = driver_view(values, model, profiles, placed.home,
-                          judged=~placed.assignment.fits_none)
+                          judged=~placed.assignment.fits_none, scales=context.scales)
     per_analyte, analyte_flags = analyte_view(values, model, profiles, placed.home,
                                               settings.z_flag, named=drivers.named)
     analyte_flags = [off + mine for off, mine in zip(analyte_flags, drivers.flags)]
@@ -152,7 +184,8 @@ def place_lots(table: LotTable, model: StyleModel, profiles: Profiles | None = N
 
 
 def locate_lots(values: pd.DataFrame, flags: pd.DataFrame, model: StyleModel, config: Config,
-                atypical_percentile: float) -> Placed:
+                atypical_percentile: float, reference: FitReference | None = None,
+                line: float | None = None) -> Placed:
     """The lots' clustering-space and map positions, their styles and typicality.
 
     Parameters
@@ -164,30 +197,32 @@ def locate_lots(values: pd.DataFrame, flags: pd.DataFrame, model: StyleModel, co
         For the censoring rule and the imputation neighbours.
     atypical_percentile : float
         The training lots' percentile of the outlier score that marks a lot atypical.
+    reference : FitReference, optional
+        The model's fitted lots, tree and predictor when already built
+        (:func:`vinstrata.segment.reference.model_reference`); built here otherwise.
+    line : float, optional
+        The atypical line when already computed (it depends on ``atypical_percentile`` only).
 
     Returns
     -------
     Placed
     """
+    reference = reference or model_reference(model)
     scaled = scale_chemistry(values[list(model.analytes)], flags, model.scaler, config,
-                             reference=model.scaled)
-    k = min(model.params.neighbours, len(model.lots))
-    found = embed.nearest(model.scaled, k, query=scaled)
-    if model.params.space == "umap":
-        space = embed.interpolate(found, model.space)
-    else:
-        space = scaled.astype(np.float32)
-    assignment = place_in_styles(model, space, scaled)
+                             reference=reference.scaled)
+    located = reference.locate(scaled)
+    assignment = located.assignment
     # the atypical line is the training lots' own percentile, under this run's settings
-    line = atypical_line(model.lots["outlier_score"].to_numpy(dtype=float),
-                         atypical_percentile)
+    if line is None:
+        line = atypical_line(model.lots["outlier_score"].to_numpy(dtype=float),
+                             atypical_percentile)
     atypical = (assignment.outlier_score > line) | (assignment.style_index < 0)
     ids = model.style_ids
     style = np.array([ids[s] if s >= 0 else UNASSIGNED for s in assignment.style_index],
                      dtype=object)
     home = np.array([ids[s] for s in assignment.nearest_index], dtype=object)
-    return Placed(space=space, map_xy=embed.interpolate(found, model.map2d),
-                  assignment=assignment, atypical=atypical, style=style, home=home)
+    return Placed(space=located.space, map_xy=located.map_xy, assignment=assignment,
+                  atypical=atypical, style=style, home=home)
 
 
 def _lot_flags(placed: Placed, analyte_flags: list[list[Flag]],

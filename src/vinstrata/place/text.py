@@ -3,14 +3,25 @@
 from __future__ import annotations
 
 import textwrap
+from typing import TYPE_CHECKING
 
 from vinstrata.place.limits import CAUTION, SULFITE_LINES, VA_EXCEPTIONS
 from vinstrata.place.placing import INDICATION, Placements
 from vinstrata.read.lots import UNASSIGNED, USED
 
+if TYPE_CHECKING:
+    from vinstrata.place.stream import PlaceTally
 
-def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
-    """The placements as a terminal table readable at ``width`` columns."""
+
+def describe(placements: Placements, width: int = 100, limit: int = 60,
+             tally: PlaceTally | None = None) -> str:
+    """The placements as a terminal table readable at ``width`` columns.
+
+    With ``tally`` (a file placed in batches) the table shows ``tally.head``
+    and the counts are the tally's, over every batch.
+    """
+    if tally is not None and tally.head is not None:
+        placements = tally.head
     lots = placements.lots
     used = lots[lots["status"] == USED]
     details = placements.details.set_index("lot_id") if len(placements.details) else None
@@ -36,15 +47,18 @@ def describe(placements: Placements, width: int = 100, limit: int = 60) -> str:
         chunks.append(line)
         lines.append(head + chunks[0])
         lines += [" " * len(head) + c for c in chunks[1:]]
-    if len(used) > limit:
-        lines.append(f"... {len(used) - limit} more lots in placements.csv")
     rejected = lots[lots["status"] != USED]
+    n_used, n_atypical, n_rejected, n_label = (
+        (tally.used, tally.atypical, tally.rejected, tally.sulfite) if tally is not None else
+        (len(used), int(used["atypical"].astype(bool).sum()), len(rejected),
+         int(used["flags"].str.contains("sulfite_statement", regex=False).sum())))
+    if n_used > limit:
+        lines.append(f"... {n_used - limit} more lots in placements.csv")
     lines.append("-" * width)
-    n_label = int(used["flags"].str.contains("sulfite_statement", regex=False).sum())
     line = SULFITE_LINES.get(placements.settings.market)
     lines += textwrap.wrap(
-        f"{len(used)} lots placed, {int(used['atypical'].astype(bool).sum())} atypical, "
-        f"{len(rejected)} rejected; {n_label} flagged for a sulfite statement"
+        f"{n_used} lots placed, {n_atypical} atypical, "
+        f"{n_rejected} rejected; {n_label} flagged for a sulfite statement"
         + (f" ({line})." if line else "."), width)
     for row in rejected.head(10).itertuples():
         lines.append(f"  rejected: {row.lot_id or '(no id)'}: {row.status}")

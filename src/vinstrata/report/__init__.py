@@ -51,10 +51,33 @@ def _comparison(model: StyleModel, profiles: Profiles | None, previous: StyleMod
     return compare_models(model, previous, profiles, previous_profiles)
 
 
+def gather(model: StyleModel, profiles: Profiles | None = None,
+           placements: Placements | None = None, config: Config | None = None,
+           previous: StyleModel | None = None, previous_profiles: Profiles | None = None,
+           map_points: int = pages.MAP_POINTS) -> Briefing:
+    """Everything the pages draw (the parameters are those of :func:`write_briefing`).
+
+    Returns
+    -------
+    Briefing
+    """
+    config = config or model.config
+    date = briefing_date()
+    return Briefing(
+        model=model, config=config, profiles=profiles, placements=placements,
+        date=date, title=config.report.title,
+        foot=f"{config.report.title} · {model.source.name} · {date}",
+        style_index={sid: i for i, sid in enumerate(model.style_ids)},
+        comparison=_comparison(model, profiles, previous, previous_profiles),
+        map_points=map_points,
+    )
+
+
 def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | None = None,
                    placements: Placements | None = None, config: Config | None = None,
                    previous: StyleModel | None = None,
-                   previous_profiles: Profiles | None = None) -> Path:
+                   previous_profiles: Profiles | None = None,
+                   map_points: int = pages.MAP_POINTS) -> Path:
     """Write the briefing PDF.
 
     Parameters
@@ -75,6 +98,9 @@ def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | Non
     previous_profiles : Profiles, optional
         Its profiles, for the drivers that appeared or vanished; computed from
         it when left out and both models have grades.
+    map_points : int
+        Lots a map draws at most; beyond it the maps draw a seeded sample,
+        stratified by style, and say so on the page.
 
     Returns
     -------
@@ -87,14 +113,7 @@ def write_briefing(path: str | Path, model: StyleModel, profiles: Profiles | Non
     config = config or model.config
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    date = briefing_date()
-    data = Briefing(
-        model=model, config=config, profiles=profiles, placements=placements,
-        date=date, title=config.report.title,
-        foot=f"{config.report.title} · {model.source.name} · {date}",
-        style_index={sid: i for i, sid in enumerate(model.style_ids)},
-        comparison=_comparison(model, profiles, previous, previous_profiles),
-    )
+    data = gather(model, profiles, placements, config, previous, previous_profiles, map_points)
     builders = [pages.cover, pages.maps, pages.segmentation]
     builders += [lambda d, p, sid=sid: pages.style_card(d, sid, p) for sid in model.style_ids]
     builders.append(pages.differences)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 from dataclasses import dataclass, field
+from functools import cached_property
 
 import numpy as np
 import pandas as pd
@@ -50,6 +51,12 @@ from vinstrata.settings import PlaceSettings, ProfileSettings
 MAX_TABLE_ROWS = 48
 MAX_LABELLED = 60
 LABEL_ALL = 20
+# Lots drawn on a map at most. Beyond a few tens of thousands a map shows no more (the dots
+# merge, and the colour drawn last covers the rest), while drawing and rasterising grow
+# with every lot; above it the maps show a seeded sample, stratified by style.
+MAP_POINTS = 25_000
+MIN_STYLE_DOTS = 1_000  # dots a style (or the lots fitting none) keeps at least in a sample
+MAX_VECTOR_DOTS = 2_000  # new lots drawn as vector markers at most; more are rasterised
 
 
 @dataclass(frozen=True)
@@ -71,6 +78,19 @@ class Briefing:
     style_index: dict[str, int] = field(default_factory=dict)
     # what changed since the previous model (segment --previous); None without one
     comparison: Comparison | None = None
+    # lots drawn on a map at most (a seeded sample, stratified by style, beyond it)
+    map_points: int = MAP_POINTS
+
+    @cached_property
+    def map_sample(self) -> MapSample:
+        """The training lots the maps draw: all of them, or a seeded stratified sample."""
+        style = self.model.lots["style"].to_numpy(dtype=object)
+        return map_sample(style, self.map_points, self.model.params.seed)
+
+    @cached_property
+    def lot_bands(self) -> tuple[np.ndarray, np.ndarray]:
+        """Home style and band of every training lot (computed once for every page)."""
+        return _bands(self)
 
     @property
     def styles(self) -> pd.DataFrame:
@@ -107,6 +127,82 @@ class Briefing:
     def bands(self) -> Bands:
         """The grade bands of the profiles (of the model's config without profiles)."""
         return self.profile_settings.bands
+
+
+@dataclass(frozen=True)
+class MapSample:
+    """The lots a map draws and what to say about them.
+
+    ``index`` holds the drawn lots' positions in file order; ``floor`` the dots
+    each style keeps at least in a sample (0 when every lot is drawn).
+    """
+
+    index: np.ndarray
+    n_lots: int
+    floor: int = 0
+
+    @property
+    def sampled(self) -> bool:
+        return len(self.index) < self.n_lots
+
+    def note(self, what: str = "lots") -> str:
+        """The sample in plain words ("" when every lot is drawn)."""
+        if not self.sampled:
+            return ""
+        return f"a seeded sample of {len(self.index):,} of {self.n_lots:,} {what}"
+
+
+def _quotas(sizes: np.ndarray, cap: int, floor: int) -> np.ndarray:
+    """Dots per stratum: ``floor`` each (or all its lots), the rest of ``cap`` shared
+    in proportion to the lots left, by largest remainders (ties to the first stratum)."""
+    base = np.minimum(sizes, floor)
+    left = sizes - base
+    spare = cap - int(base.sum())
+    if spare <= 0 or not left.sum():
+        return base
+    share = spare * left / left.sum()
+    extra = np.floor(share).astype(int)
+    rest = spare - int(extra.sum())
+    order = np.argsort(-(share - extra), kind="stable")[:rest]
+    extra[order] += 1
+    return base + np.minimum(extra, left)
+
+
+def map_sample(strata: np.ndarray, cap: int, seed: int) -> MapSample:
+    """The lots a map draws: every lot up to ``cap``, above it a seeded stratified sample.
+
+    Each stratum (a style, or the lots fitting none) keeps at least
+    ``min(MIN_STYLE_DOTS, cap // (2 * strata))`` dots, or all its lots, so that small
+    styles and unassigned lots stay visible; the rest of ``cap`` goes to the strata in
+    proportion to their lots. Strata are visited in sorted order and each drawn from one
+    generator seeded with ``seed``, so the same lots give the same sample.
+
+    Parameters
+    ----------
+    strata : ndarray
+        Each lot's stratum (its style).
+    cap : int
+        Lots drawn at most.
+    seed : int
+        The model's seed.
+
+    Returns
+    -------
+    MapSample
+    """
+    n = len(strata)
+    if n <= cap:
+        return MapSample(np.arange(n), n)
+    codes, keys = pd.factorize(pd.Series(strata, dtype=object), sort=True)
+    sizes = np.bincount(codes, minlength=len(keys))
+    floor = max(min(MIN_STYLE_DOTS, cap // (2 * len(keys))), 1)
+    quotas = _quotas(sizes, cap, floor)
+    rng = np.random.default_rng(seed)
+    members = np.argsort(codes, kind="stable")  # lots grouped by stratum, file order inside
+    starts = np.concatenate([[0], np.cumsum(sizes)])
+    picked = [rng.choice(members[starts[k]:starts[k + 1]], size=int(quotas[k]), replace=False)
+              for k in range(len(keys))]
+    return MapSample(np.sort(np.concatenate(picked)), n, floor)
 
 
 def _bands(data: Briefing) -> tuple[np.ndarray, np.ndarray]:
@@ -188,30 +284,42 @@ def _map_axes(fig: Figure, rect: list[float]):
 
 
 def maps(data: Briefing, page: int) -> Figure:
-    fig = new_page("The range on one map",
-                   "Each dot is a lot; nearby lots have similar chemistry. Grey: lots that fit "
-                   "no style.")
-    lots = data.model.lots
-    size = float(np.clip(10000 / max(len(lots), 1), 0.4, 14))
+    sample = data.map_sample
+    subtitle = ("Each dot is a lot; nearby lots have similar chemistry. Grey: lots that fit no "
+                "style.")
+    if sample.sampled:
+        subtitle += f" Maps drawn from {sample.note()}."
+    fig = new_page("The range on one map", subtitle)
+    size = float(np.clip(10000 / max(len(sample.index), 1), 0.4, 14))
     _style_map(fig, data, size)
     _band_map(fig, data, size)
+    if sample.sampled:
+        text_block(fig, 0.27, [
+            f"Both maps are drawn from {sample.note()}: every style, and the lots that fit no "
+            f"style, keep at least {sample.floor:,} dots (or all their lots), so small ones stay "
+            "visible. The counts in the legends are of all lots."], size=7, width=34,
+            left=0.75, bottom=0.07)
     return _finish(fig, data, page)
 
 
 def _style_map(fig: Figure, data: Briefing, size: float) -> None:
     """The upper map: lots coloured by style, with a legend of the styles."""
     lots = data.model.lots
-    x, y = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
-    style = lots["style"].to_numpy(dtype=object)
+    x_all, y_all = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
+    style_all = lots["style"].to_numpy(dtype=object)
+    drawn = data.map_sample.index
+    x, y, style = x_all[drawn], y_all[drawn], style_all[drawn]
     ax = _map_axes(fig, [0.1, 0.51, 0.62, 0.37])
     ax.set_title("coloured by style", fontsize=9, loc="left")
     un = style == UNASSIGNED
     for sid in data.model.style_ids:
         mask = style == sid
         ax.scatter(x[mask], y[mask], s=size, c=data.colour(sid), linewidths=0, rasterized=True)
-        if mask.any():
-            ax.text(np.median(x[mask]), np.median(y[mask]), sid, fontsize=8, fontweight="bold",
-                    ha="center", va="center", color=INK,
+        # the label sits at the median of all the style's lots, sampled or not
+        every = style_all == sid
+        if every.any():
+            ax.text(np.median(x_all[every]), np.median(y_all[every]), sid, fontsize=8,
+                    fontweight="bold", ha="center", va="center", color=INK,
                     bbox={"boxstyle": "round,pad=0.2", "fc": "white", "ec": data.colour(sid),
                           "alpha": 0.7})
     # unassigned lots on top, small and grey, so that the few there are stay visible
@@ -228,7 +336,8 @@ def _style_map(fig: Figure, data: Briefing, size: float) -> None:
 def _band_map(fig: Figure, data: Briefing, size: float) -> None:
     """The lower map: lots coloured by grade band, as the profiles band them."""
     lots = data.model.lots
-    x, y = lots["map_x"].to_numpy(), lots["map_y"].to_numpy()
+    drawn = data.map_sample.index
+    x, y = lots["map_x"].to_numpy()[drawn], lots["map_y"].to_numpy()[drawn]
     ax = _map_axes(fig, [0.1, 0.07, 0.62, 0.37])
     ax.set_title("coloured by grade band", fontsize=9, loc="left")
     if not np.isfinite(lots["grade"].to_numpy(dtype=float)).any():
@@ -238,14 +347,16 @@ def _band_map(fig: Figure, data: Briefing, size: float) -> None:
         return
     settings = data.bands
     labels = settings.labels
-    bands = _bands(data)[1]
+    bands_all = data.lot_bands[1]
+    bands = bands_all[drawn]
     colours = band_colours(len(labels))
     ax.scatter(x[bands < 0], y[bands < 0], s=size * 0.7, c=UNASSIGNED_COLOUR,
                linewidths=0, rasterized=True)
+    counts = np.bincount(bands_all[bands_all >= 0], minlength=len(labels))
     for b in range(len(labels)):
         mask = bands == b
         ax.scatter(x[mask], y[mask], s=size, c=colours[b], linewidths=0, rasterized=True,
-                   label=f"{labels[b]} ({int(mask.sum())})")
+                   label=f"{labels[b]} ({int(counts[b])})")
     ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.02, 1),
               markerscale=max(1.0, 6 / max(size, 0.1)))
     mode = ("global cuts " + ", ".join(f"{c:g}" for c in settings.cuts)
@@ -317,6 +428,13 @@ def _segmentation_text(model: StyleModel) -> list[str]:
         f"to the style, as a z score; above {model.outliers['cutoff']:g}: unassigned), because "
         "UMAP pulls unusual lots into the nearest cluster.",
     ]
+    fitted = int(model.in_fit.sum())
+    if fitted < len(model.lots):
+        text.insert(0, (
+            f"Styles fitted on a seeded sample of {fitted:,} of {len(model.lots):,} lots, "
+            "stratified by chemistry so that small styles keep their lots; every other lot "
+            "was then assigned the way a new lot is placed (style, membership, typicality) and "
+            "counts in the styles and profiles like any other."))
     if params.one_style:
         text.append("No candidate kept two styles apart: the range is reported as one style.")
     return text
@@ -465,7 +583,7 @@ def _driver_panels(fig: Figure, data: Briefing, sid: str, drivers: pd.DataFrame,
                               f"false discovery rate {data.profile_settings.fdr:g}."], size=9)
         return
     thresholds = data.profiles.thresholds.set_index(["style", "analyte"])
-    home, bands = _bands(data)
+    home, bands = data.lot_bands
     mask = home == sid
     width = 0.84 / len(chosen)
     fig.text(MARGIN, top + 0.005, "Top drivers by band (dashed: the Youden cut; shaded: the top "
@@ -592,32 +710,48 @@ def new_lots_map(data: Briefing, page: int) -> Figure:
     model = data.model
     lots = model.lots
     ax = _map_axes(fig, [0.1, 0.3, 0.82, 0.6])
-    ax.scatter(lots["map_x"], lots["map_y"], s=2, c="#DDDDDD", linewidths=0, rasterized=True)
+    history = data.map_sample
+    ax.scatter(lots["map_x"].to_numpy()[history.index], lots["map_y"].to_numpy()[history.index],
+               s=2, c="#DDDDDD", linewidths=0, rasterized=True)
     details = placements.details
     used = placements.lots[placements.lots["status"] == USED].drop_duplicates("lot_id")
-    atypical = details["lot_id"].map(used.set_index("lot_id")["atypical"]).astype(bool)
-    atypical = atypical.to_numpy()
-    x, y = details["map_x"].to_numpy(), details["map_y"].to_numpy()
-    style = details["style"].to_numpy(dtype=object)
+    atypical_all = details["lot_id"].map(used.set_index("lot_id")["atypical"]).astype(bool)
+    atypical_all = atypical_all.to_numpy()
+    # many new lots: a seeded sample of them, stratified by style and by atypical, drawn
+    # as pixels (vector markers cost bytes per lot)
+    style_all = details["style"].to_numpy(dtype=object)
+    fresh = map_sample(style_all + np.where(atypical_all, "|atypical", ""), data.map_points,
+                       data.model.params.seed)
+    raster = len(fresh.index) > MAX_VECTOR_DOTS
+    x, y = details["map_x"].to_numpy()[fresh.index], details["map_y"].to_numpy()[fresh.index]
+    style, atypical = style_all[fresh.index], atypical_all[fresh.index]
     none = style == UNASSIGNED
-    ax.scatter(x[none], y[none], marker="x", s=28, c="black", linewidths=1.2)
+    ax.scatter(x[none], y[none], marker="x", s=28, c="black", linewidths=1.2, rasterized=raster)
     for sid in dict.fromkeys(style[~none]):
         mask = style == sid
-        ax.scatter(x[mask], y[mask], s=22, c=data.colour(sid), edgecolors=INK, linewidths=0.4)
+        ax.scatter(x[mask], y[mask], s=22, c=data.colour(sid), edgecolors=INK, linewidths=0.4,
+                   rasterized=raster)
     ax.scatter(x[atypical], y[atypical], s=90, facecolors="none", edgecolors=WARN_COLOUR,
-               linewidths=1.0)
+               linewidths=1.0, rasterized=raster)
     # with many new lots, names would pile up: label the atypical ones, the table has the rest
-    label = np.ones(len(details), dtype=bool) if len(details) <= LABEL_ALL else atypical
+    label = np.ones(len(x), dtype=bool) if len(details) <= LABEL_ALL else atypical
+    lot_ids = details["lot_id"].to_numpy(dtype=object)[fresh.index]
     for k in np.flatnonzero(label)[:MAX_LABELLED]:
-        ax.annotate(str(details["lot_id"].iloc[k]), (x[k], y[k]), fontsize=6, xytext=(4, 4),
+        ax.annotate(str(lot_ids[k]), (x[k], y[k]), fontsize=6, xytext=(4, 4),
                     textcoords="offset points", color=INK)
     n_atyp = int(used["atypical"].astype(bool).sum())
-    text_block(fig, 0.25, [
+    notes = [
         f"{len(details)} new lots placed, {n_atyp} atypical; "
         f"{int((placements.lots['status'] != USED).sum())} rows rejected.",
         "A new lot's position is the weighted mean of its nearest historical lots' positions "
         "(the way UMAP starts new points).",
-    ], size=8.5)
+    ]
+    if history.sampled:
+        notes.append(f"Grey dots: {history.note('historical lots')}.")
+    if fresh.sampled:
+        notes.append(f"New lots drawn: {fresh.note('new lots')}, every style and the atypical "
+                     f"lots keeping at least {fresh.floor:,} (or all theirs).")
+    text_block(fig, 0.25, notes, size=8.5)
     return _finish(fig, data, page)
 
 
