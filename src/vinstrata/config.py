@@ -287,7 +287,7 @@ class Segment:
         {}, _table_of(_choice(AUTO, "log", "none"), '"auto", "log" or "none"'))
     impute_neighbours: int = setting(5, _between(_integer, 1, 100))
     map_min_dist: float = setting(0.1, _between(_number, 0.0, 1.0))
-    fit_sample: int = setting(50_000, _positive(_integer, 100))
+    fit_sample: int = setting(25_000, _positive(_integer, 100))
 
 
 @dataclass(frozen=True)

@@ -25,8 +25,10 @@ import numpy as np
 
 from vinstrata.errors import InputError
 from vinstrata.segment.membership import (
+    Reach,
     SoftTables,
     predict_clusters,
+    reach,
     soft_membership,
     soft_tables,
 )
@@ -315,12 +317,15 @@ class Predictor:
     def n_styles(self) -> int:
         return len(self.shapes)
 
-    def soft(self, points: np.ndarray) -> np.ndarray:
-        """Soft membership of lots at ``points`` to every style (rows sum to 1)."""
+    def soft(self, points: np.ndarray, near: Reach | None = None) -> np.ndarray:
+        """Soft membership of lots at ``points`` to every style (rows sum to 1).
+
+        ``near`` is their :class:`~vinstrata.segment.membership.Reach` when already known.
+        """
         if self.clusterer is None or not len(points):
             return np.full((len(points), self.n_styles), 1.0 / max(self.n_styles, 1))
         tables = self.tables or soft_tables(self.clusterer)
-        vectors = soft_membership(tables, points)  # hdbscan.membership_vector, vectorised
+        vectors = soft_membership(tables, points, near)  # hdbscan.membership_vector, vectorised
         soft = _sum_by_style(vectors.reshape(len(points), -1), self.style_of_cluster,
                              self.n_styles)
         return soft / np.maximum(soft.sum(axis=1, keepdims=True), 1e-12)
@@ -331,16 +336,21 @@ class Predictor:
         if self.clusterer is None:
             return Prediction(np.zeros(n, dtype=int), np.ones(n),
                               lambda rows: self.soft(space[rows]))
-        # hdbscan.approximate_predict, vectorised
-        clusters, strength = predict_clusters(self.tables or soft_tables(self.clusterer), space)
+        tables = self.tables or soft_tables(self.clusterer)
+        near = reach(tables, space)  # one tree query for the prediction and the soft membership
+        clusters, strength = predict_clusters(tables, space, near)  # approximate_predict
         styles = np.asarray((*self.style_of_cluster, -1), dtype=int)
         return Prediction(styles[np.asarray(clusters, dtype=int)],
                           np.asarray(strength, dtype=float).copy(),
-                          lambda rows: self.soft(space[rows]))
+                          lambda rows: self.soft(space[rows], near.take(rows)))
 
-    def assign(self, space: np.ndarray, scaled: np.ndarray) -> Assignment:
-        """Lots at ``space`` (with scaled chemistry ``scaled``) assigned to the styles."""
-        return assign_lots(self.predict(space), self.shapes, scaled, self.cutoff)
+    def assign(self, space: np.ndarray, scaled: np.ndarray,
+               prediction: Prediction | None = None) -> Assignment:
+        """Lots at ``space`` (with scaled chemistry ``scaled``) assigned to the styles.
+
+        ``prediction`` is :meth:`predict` of ``space`` when already made.
+        """
+        return assign_lots(prediction or self.predict(space), self.shapes, scaled, self.cutoff)
 
 
 def fit_predictor(clusterer: object | None, space: np.ndarray,

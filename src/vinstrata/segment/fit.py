@@ -289,7 +289,7 @@ def _with_others(sample: _FitLots, lots: _TrainingLots, fitted: np.ndarray,
         chem = scale_chemistry(part.values, part.flags, scaler, config, reference=sample.scaled)
         located = reference.locate(chem)
         scaled[rows], space[rows], map2d[rows] = chem, located.space, located.map_xy
-        soft[rows] = predictor.soft(located.space)
+        soft[rows] = located.prediction.soft(np.arange(len(rows)))
         for name, values in parts.items():
             values[rows] = getattr(located.assignment, name)
         rep.bar(min(start + PLACE_BATCH, len(others)), len(others), "  assigning the others")
@@ -487,8 +487,10 @@ def _lot_colours(table: LotTable, config: Config) -> np.ndarray | None:
         return None
     from vinstrata.place.limits import normalise_colour
 
-    return np.array([normalise_colour(v) for v in table.extra.loc[table.used, column]],
-                    dtype=object)
+    # few distinct spellings among many lots: normalise each once
+    values = table.extra.loc[table.used, column].astype(str).to_numpy()
+    distinct, where = np.unique(values, return_inverse=True)
+    return np.array([normalise_colour(v) for v in distinct], dtype=object)[where.ravel()]
 
 
 def _report_styles(styles: pd.DataFrame, rep: Reporter) -> None:

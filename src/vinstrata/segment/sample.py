@@ -3,8 +3,8 @@
 Above ``segment.fit_sample`` lots, the styles are fitted on a sample and every
 other lot is placed against them as a new lot would be
 (:mod:`vinstrata.segment.reference`). UMAP's neighbour graph and HDBSCAN's tree
-grow faster than the lots; a sample of fifty thousand lots holds every style a
-range of a million shows, if the small ones are not thinned out by chance. A
+grow faster than the lots; a sample of some tens of thousands of lots holds every
+style a range of a million shows, if the small ones are not thinned out by chance. A
 plain random sample would leave a style of a few hundred lots in a million with
 a handful, below HDBSCAN's cluster sizes, so the sample is stratified:
 
@@ -14,7 +14,7 @@ a handful, below HDBSCAN's cluster sizes, so the sample is stratified:
    :data:`KMEANS_LOTS` lots, one thread so the cells do not depend on the machine);
 2. each cell gives at least ``floor`` lots (all of its lots when it holds fewer),
    ``floor`` being half the sample shared equally over the cells: at the default
-   50,000 lots and 100 cells, 250 lots, the smallest HDBSCAN cluster size the
+   25,000 lots and 100 cells, 125 lots, the smallest HDBSCAN cluster size the
    default sweep tries (0.5 % of the sample), so a compact style that fills one
    cell can still be found;
 3. the rest of the sample is shared over the cells in proportion to their
