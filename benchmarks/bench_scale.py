@@ -3,8 +3,9 @@
 Every step is a whole cold process (`benchmarks/cold.py`), on lots from the demo
 generator (`vinstrata demo`, not timed). Per size: `segment` (the bounded fit
 above `segment.fit_sample`), `profile` of that model; then new lots are placed
-against the largest model, in one process and through Dask (`--engine dask`, a
-LocalCluster on this machine's cores) when the `dask` extra is installed.
+against the largest model with its profiles (`--profiles`), in one process and
+through Dask (`--engine dask`, a LocalCluster on this machine's cores) when the
+`dask` extra is installed.
 
 Targets, on 2 cores, as ratios measured in this one run:
 
@@ -77,6 +78,8 @@ def main() -> None:
     parser.add_argument("--sizes", default="20000,200000,1000000",
                         help="comma-separated range sizes to segment and profile")
     parser.add_argument("--work", default="", help="folder to keep the runs in (else a temp)")
+    parser.add_argument("--reuse", action="store_true",
+                        help="reuse the demo ranges and models already in --work")
     args = parser.parse_args()
     sizes = [int(s) for s in args.sizes.split(",")]
     work = Path(args.work or tempfile.mkdtemp(prefix="vinstrata-scale-"))
@@ -85,9 +88,20 @@ def main() -> None:
     profile: dict[int, Timed] = {}
     for n in sizes:
         new = max(PLACE_SIZES) if n == max(sizes) else 0
+        if args.reuse and (work / f"r{n}" / "model" / "model.json").exists():
+            print(f"segment {n:>9,} lots: reused from {work / f'r{n}'}")
+            continue
         data = make_range(work / f"d{n}", n, new, seed=5)
         segment[n] = step(f"segment {n:>9,} lots", ["-q", "segment", data / "lots.csv",
                                                      "--config", CONFIG, "--out", work / f"r{n}"])
+    # profiles before placing: place reads the drivers from the model's folder
+    for n in sizes:
+        if args.reuse and (work / f"r{n}" / "profile_manifest.json").exists():
+            print(f"profile {n:>9,} lots: reused from {work / f'r{n}'}")
+            continue
+        profile[n] = step(f"profile {n:>9,} lots", ["-q", "profile", "--model",
+                                                    work / f"r{n}" / "model", "--out",
+                                                    work / f"r{n}"])
     model = work / f"r{max(sizes)}" / "model"
     new_lots = work / f"d{max(sizes)}" / "new_lots.csv"
     dask = importlib.util.find_spec("distributed") is not None
@@ -103,14 +117,9 @@ def main() -> None:
                 shutil.rmtree(out, ignore_errors=True)
                 place[engine, m] = step(f"place {m:>9,} lots ({engine})",
                                         ["-q", "place", part, "--model", model, "--out", out,
-                                         *extra])
+                                         "--profiles", model.parent, *extra])
                 rows = placed_rows(out)
                 print(f"  {rows:,} of {m:,} input rows in the output")
-    # profiles last: their target is memory, which other work on the machine does not move
-    for n in sizes:
-        profile[n] = step(f"profile {n:>9,} lots", ["-q", "profile", "--model",
-                                                    work / f"r{n}" / "model", "--out",
-                                                    work / f"r{n}"])
     print("\nratios")
     if 20_000 in segment and 200_000 in segment:
         ratio("segment time 200k / 20k", segment[200_000].seconds / segment[20_000].seconds,

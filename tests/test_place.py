@@ -207,3 +207,35 @@ def test_placements_carry_their_settings_through_their_folder(demo_model, demo_p
     (tmp_path / "out" / "place_settings.json").unlink()
     with pytest.raises(InputError, match=r"no place_settings\.json .*'vinstrata place' again"):
         pipeline.read_place(tmp_path / "out")
+
+
+def test_place_with_a_profile_folder_gives_the_placements_of_profiling_here(
+        demo_model_dir, demo_config, tmp_path, run_cli):
+    config = ROOT / "configs" / "demo.toml"
+    prof = tmp_path / "prof"
+    assert run_cli("-q", "profile", "--model", demo_model_dir, "--config", config,
+                   "--out", prof).code == 0
+    here, given = tmp_path / "here", tmp_path / "given"
+    assert run_cli("-q", "place", DEMO / "new_lots.csv", "--model", demo_model_dir,
+                   "--config", config, "--out", here).code == 0
+    result = run_cli("-q", "place", DEMO / "new_lots.csv", "--model", demo_model_dir,
+                     "--config", config, "--out", given, "--profiles", prof)
+    assert result.code == 0, result
+    for name in ("placements.csv", "placement_analytes.csv"):
+        assert (here / name).read_bytes() == (given / name).read_bytes(), name
+    # the driver scores and the medians quoted in the words rest on the values the profile
+    # files keep (6 significant digits): the flags agree, the scores to 1e-5
+    a, b = pd.read_csv(here / "placement_details.csv"), pd.read_csv(given / "placement_details.csv")
+    assert a["flags_short"].equals(b["flags_short"])
+    assert ((a["driver_score"] - b["driver_score"]).abs().max() < 1e-5)
+
+
+def test_profiles_of_another_model_are_refused(demo_model_dir, tmp_path, run_cli):
+    other = tmp_path / "other"
+    assert run_cli("-q", "segment", DEMO / "lots.csv", "--config", ROOT / "configs" / "demo.toml",
+                   "--seed", "3", "--out", other).code == 0
+    assert run_cli("-q", "profile", "--model", other / "model", "--out", other).code == 0
+    result = run_cli("place", DEMO / "new_lots.csv", "--model", demo_model_dir,
+                     "--out", tmp_path / "out", "--profiles", other)
+    assert result.code == 2
+    assert "belong to another model" in result.err and result.err.count("\n") == 1

@@ -326,10 +326,14 @@ def profile(state: State, model_dir: Path, config_path: Path | None, out_dir: Pa
 @click.option("--scheduler", default=None, metavar="ADDRESS",
               help="With --engine dask: a running scheduler (tcp://host:8786); default: a "
                    "local cluster, one worker process per core.")
+@click.option("--profiles", "profiles_dir", default=None, type=RESULT_FOLDER,
+              help="A 'vinstrata profile' output folder of this model, for the driver flags "
+                   "(default: profile the model here first).")
 @shared_options
 @click.pass_obj
 def place(state: State, new: Path, model_dir: Path, config_path: Path | None, out_dir: Path,
-          sheet: str | None, formats: str, engine: str, scheduler: str | None) -> None:
+          sheet: str | None, formats: str, engine: str, scheduler: str | None,
+          profiles_dir: Path | None) -> None:
     """Place new lots against their styles; writes placements.csv and details."""
     from contextlib import nullcontext
 
@@ -347,14 +351,19 @@ def place(state: State, new: Path, model_dir: Path, config_path: Path | None, ou
         model, config = _model_and_config(model_dir, config_path)
         identity = pipeline.run_identity(model)
         folder.claim(identity)
+        if profiles_dir is not None:  # refuse another model's profiles before any work
+            pipeline.check_results_model(profiles_dir, "profile", model)
         with rep.stage("check: read and validate the new lots"):
             batches = pipeline.new_lot_batches(new, model, config, config.place.batch_lots,
                                                sheet=sheet)
             scan = pipeline.scan_new(batches, model, config)
         pipeline.warn_file(scan, batches, rep, where="placements.csv")
-        with rep.stage("profile: the model's styles, for their driver cuts"):
-            profiles = (pipeline.profile(model, config, for_placing=True) if model.has_grade
-                        else None)
+        if profiles_dir is not None:
+            profiles = pipeline.read_profile(profiles_dir)
+        else:
+            with rep.stage("profile: the model's styles, for their driver cuts"):
+                profiles = (pipeline.profile(model, config, for_placing=True)
+                            if model.has_grade else None)
         if engine == "dask":
             from vinstrata.place.cluster import dask_runner
 
@@ -401,9 +410,12 @@ def brief(state: State, model_dir: Path, profiles_dir: Path | None, placements_d
     with OutputFolder(Path(out_pdf).parent, "brief") as folder:
         model, config = _model_and_config(model_dir, config_path)
         if profiles_dir:
+            pipeline.check_results_model(profiles_dir, "profile", model)
             profiles = pipeline.read_profile(profiles_dir)
         else:
             profiles = pipeline.profile(model, config) if model.has_grade else None
+        if placements_dir:
+            pipeline.check_results_model(placements_dir, "place", model)
         placements = pipeline.read_place(placements_dir) if placements_dir else None
         previous = _previous(previous_dir)
         with rep.stage("brief: the PDF"):

@@ -526,6 +526,28 @@ def _read_settings(folder: Path, name: str, command: str) -> object:
         raise InputError(f"{path}: unreadable ({exc.__class__.__name__})") from None
 
 
+def check_results_model(folder: str | Path, command: str, model: StyleModel) -> None:
+    """Refuse results in ``folder`` that another model made (by the manifest's fingerprint).
+
+    Raises
+    ------
+    InputError
+        ``folder`` holds no ``<command>_manifest.json``, or it names another model.
+    """
+    from vinstrata.folders import manifest_name, read_manifest
+
+    folder = Path(folder)
+    manifest = read_manifest(folder / manifest_name(command))
+    if manifest is None:
+        raise InputError(f"{folder}: no {manifest_name(command)}; these are not the results "
+                         f"of 'vinstrata {command}' (run it again into this folder)")
+    made_by = str(manifest["identity"].get("model", ""))
+    if model.fingerprint and made_by != model.fingerprint:
+        raise InputError(f"{folder}: these {command} results belong to another model "
+                         f"({made_by[:12]}, not {model.fingerprint[:12]}); run 'vinstrata "
+                         f"{command}' with this model, or leave the folder out")
+
+
 def read_profile(folder: str | Path) -> Profiles:
     """Read the files written by :func:`write_profile` back, with their settings."""
     from vinstrata.profile.drivers import Profiles
