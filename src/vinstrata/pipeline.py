@@ -532,15 +532,19 @@ def check_results_model(folder: str | Path, command: str, model: StyleModel) -> 
     Raises
     ------
     InputError
-        ``folder`` holds no ``<command>_manifest.json``, or it names another model.
+        ``folder`` holds no ``<command>_manifest.json`` (or ``run_manifest.json``), or it
+        names another model.
     """
     from vinstrata.folders import manifest_name, read_manifest
 
     folder = Path(folder)
-    manifest = read_manifest(folder / manifest_name(command))
-    if manifest is None:
+    # written by the command itself, or by 'vinstrata run', which writes every stage's files
+    found = [m for m in (read_manifest(folder / manifest_name(c)) for c in (command, "run"))
+             if m is not None]
+    if not found:
         raise InputError(f"{folder}: no {manifest_name(command)}; these are not the results "
                          f"of 'vinstrata {command}' (run it again into this folder)")
+    manifest = found[0]
     made_by = str(manifest["identity"].get("model", ""))
     if model.fingerprint and made_by != model.fingerprint:
         raise InputError(f"{folder}: these {command} results belong to another model "
