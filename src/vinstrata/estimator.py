@@ -268,6 +268,9 @@ min_cluster_size, min_samples, outlier_cutoff : optional
             status[positions] = table["status"].to_numpy(dtype=object)
         self.model_ = model
         self.config_ = config
+        # what placing needs of the model (trees, HDBSCAN rebuilt, profiles): built on the
+        # first call that places lots, then reused, not rebuilt on every predict
+        self._contexts: dict[bool, Any] = {}
         self.styles_ = model.styles.copy()
         self.labels_ = pd.Series(styles, index=index, name="style")
         self.status_ = pd.Series(status, index=index, name="status")
@@ -307,17 +310,31 @@ min_cluster_size, min_samples, outlier_cutoff : optional
         """
         return self._placements(X, profiles)[1]
 
-    def _placements(self, X: pd.DataFrame, profiles: bool) -> tuple[LotTable, Placements]:
+    def _context(self, profiles: bool) -> Any:
+        """The model's placing context, with or without its profiles (built once)."""
         from vinstrata.pipeline import profile as profile_stage
+        from vinstrata.place.context import placing_context
+
+        contexts = getattr(self, "_contexts", None)
+        if contexts is None:
+            contexts = self._contexts = {}
+        if profiles not in contexts:
+            model = self.model_
+            found = (profile_stage(model, model.config, for_placing=True)
+                     if profiles and model.has_grade else None)
+            contexts[profiles] = placing_context(model, found, model.config)
+        return contexts[profiles]
+
+    def _placements(self, X: pd.DataFrame, profiles: bool) -> tuple[LotTable, Placements]:
         from vinstrata.place.placing import place_lots
 
         check_is_fitted(self)
         rep = Reporter()
         table = self._new_lots(X, rep)
         model = self.model_
-        found = (profile_stage(model, model.config, for_placing=True)
-                 if profiles and model.has_grade else None)
-        return table, place_lots(table, model, found, model.config, rep)
+        context = self._context(profiles)
+        return table, place_lots(table, model, context.profiles, model.config, rep,
+                                 context=context)
 
     def predict(self, X: pd.DataFrame) -> pd.Series:
         """Each lot's style: ``S1`` ..., ``unassigned`` when it fits no style, None when rejected.
@@ -353,7 +370,8 @@ min_cluster_size, min_samples, outlier_cutoff : optional
         flags = table.flags.loc[used].reset_index(drop=True)
         model = self.model_
         return table, locate_lots(values, flags, model, model.config,
-                             model.config.place.atypical_percentile)
+                                  model.config.place.atypical_percentile,
+                                  reference=self._context(False).reference)
 
     def predict_proba(self, X: pd.DataFrame) -> pd.DataFrame:
         """Each lot's soft membership to every style (rows sum to 1; NaN when rejected).
@@ -361,14 +379,11 @@ min_cluster_size, min_samples, outlier_cutoff : optional
         HDBSCAN's membership vectors summed over each style's clusters, as
         segmentation gives them (:meth:`vinstrata.segment.assign.Predictor.soft`).
         """
-        from vinstrata.segment.assign import predict_styles
-
         check_is_fitted(self)
         table, placed = self._positions(X)
         soft = np.full((table.n_rows, len(self.model_.style_ids)), np.nan)
         if placed is not None:
-            prediction = predict_styles(self.model_, placed.space)
-            soft[table.used] = prediction.soft(np.arange(len(placed.space)))
+            soft[table.used] = self._context(False).reference.predictor.soft(placed.space)
         return _per_row_frame(X, table, soft, self.model_.style_ids)
 
     def transform(self, X: pd.DataFrame) -> pd.DataFrame:
